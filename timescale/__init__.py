@@ -1,0 +1,1 @@
+"""timescale: compare analog pulse time-scaling architectures on the same pulse."""
