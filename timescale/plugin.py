@@ -39,7 +39,6 @@ import math
 import typing
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from types import MappingProxyType
 from typing import Any, ClassVar
 
 import numpy as np
@@ -163,7 +162,7 @@ class Bill:
     items: tuple[BillItem, ...] = ()
 
     def __post_init__(self):
-        object.__setattr__(self, "counts", MappingProxyType(dict(self.counts)))
+        object.__setattr__(self, "counts", dict(self.counts))
         for name in ("area", "power", "energy_per_pulse", "bw_internal"):
             value = getattr(self, name)
             if not (isinstance(value, (int, float, np.floating)) and value >= 0):
@@ -260,7 +259,7 @@ class Simulation:
     def __post_init__(self):
         if self.orientation not in (1, -1):
             raise ValueError(f"orientation must be +1 or -1, got {self.orientation!r}")
-        object.__setattr__(self, "metrics", MappingProxyType(dict(self.metrics)))
+        object.__setattr__(self, "metrics", dict(self.metrics))
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -327,12 +326,20 @@ class Method(abc.ABC):
         and one-line docs.
     version : str
         The plugin's version, recorded in the cube's provenance.
+    identity_tolerance : float
+        NRMSE the method promises at factor 1 with default parameters.
+    factor_tolerance : float
+        Relative factor error it promises with default parameters.
     """
 
     name: ClassVar[str]
     summary: ClassVar[str]
     Params: ClassVar[type]
     version: ClassVar[str] = "0"
+    #: NRMSE the method reaches at factor 1 with default parameters (conformance suite).
+    identity_tolerance: ClassVar[float] = 1e-6
+    #: Relative error allowed between the requested and the fitted factor (conformance suite).
+    factor_tolerance: ClassVar[float] = 0.05
 
     # -- parameters -------------------------------------------------------------------------
     @classmethod

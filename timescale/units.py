@@ -1,0 +1,58 @@
+"""Display units: the one place that converts SI values for people (tables, axes, reports).
+
+Code computes in SI; only display converts, with the scale chosen per unit below.
+"""
+
+from __future__ import annotations
+
+import math
+
+__all__ = ["DISPLAY", "display_unit", "to_display", "format_value", "axis_label"]
+
+#: SI unit -> (display unit, multiplier applied to the SI value).
+DISPLAY: dict[str, tuple[str, float]] = {
+    "s": ("ns", 1e9),
+    "Hz": ("GHz", 1e-9),
+    "m2": ("mm²", 1e6),
+    "m²": ("mm²", 1e6),
+    "W": ("mW", 1e3),
+    "J": ("pJ", 1e12),
+    "V": ("V", 1.0),
+    "F": ("pF", 1e12),
+    "H": ("nH", 1e9),
+    "S": ("mS", 1e3),
+    "A": ("mA", 1e3),
+    "dB": ("dB", 1.0),
+    "": ("", 1.0),
+}
+
+
+def display_unit(units: str) -> tuple[str, float]:
+    """Return ``(display unit, multiplier)`` for an SI unit string (unknown units pass through)."""
+    return DISPLAY.get(units, (units, 1.0))
+
+
+def to_display(value, units: str):
+    """Convert an SI value (or array) to its display unit; returns ``(value, unit)``."""
+    unit, k = display_unit(units)
+    return value * k, unit
+
+
+def format_value(value, units: str = "", digits: int = 4, *, unit: bool = True) -> str:
+    """Format an SI value in its display unit with `digits` significant digits ("—" for NaN);
+    `unit` appends the display unit."""
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        return str(value)
+    if math.isnan(v):
+        return "—"
+    v, shown = to_display(v, units)
+    text = f"{v:.{digits}g}"
+    return f"{text} {shown}".rstrip() if unit else text
+
+
+def axis_label(long_name: str, units: str) -> str:
+    """An axis label such as ``"fitted latency (ns)"`` from a cube variable's attributes."""
+    unit, _ = display_unit(units)
+    return f"{long_name} ({unit})" if unit else long_name
