@@ -2,7 +2,8 @@
 
 Layout: one data variable per metric over the dims (``method``, ``pulse``, ``factor``, one dim
 per swept parameter, ``trial`` when there are trials), each with ``units`` and ``long_name``;
-``status`` ("ok" / "warned" / "failed") and ``message`` per cell (without the trial dim);
+``status`` ("ok" / "warned" / "failed", or "n/a" for a swept parameter the method does not
+have, see :mod:`timescale.suite`) and ``message`` per cell (without the trial dim);
 ``design`` and ``bill`` as JSON strings per cell; provenance in the Dataset's attributes as
 str/int/float only (JSON strings for structured values). A failed cell is NaN, never dropped.
 """
@@ -92,7 +93,7 @@ def assemble(rows, axes, *, trials=1, provenance=None, methods=()):
         i = r.index
         status[i], message[i] = r.status, r.message
         design[i], bill[i], path[i] = r.design, r.bill, r.path
-        if r.status != "failed":
+        if r.status not in ("failed", "n/a"):  # "n/a": a swept parameter the method lacks
             orientation[i] = r.orientation
         for k, v in r.values.items():
             data[k][i] = v
@@ -125,6 +126,7 @@ def assemble(rows, axes, *, trials=1, provenance=None, methods=()):
         n_cells=ncell,
         n_failed=int(np.sum(status == "failed")),
         n_warned=int(np.sum(status == "warned")),
+        n_not_applicable=int(np.sum(status == "n/a")),
     )
     for k, v in (provenance or {}).items():
         if not isinstance(v, (str, int, float)):
