@@ -23,6 +23,8 @@ from .registry import (
     unregister_method,
 )
 from .run import compare, stretch
+from .suite import Suite
+from .execute import SuiteResult, run_suite
 from .technology import PRESETS, Technology, preset
 
 __version__ = "0.1.0"
@@ -39,6 +41,9 @@ __all__ = [
     "metrics",
     "stretch",
     "compare",
+    "Suite",
+    "run_suite",
+    "SuiteResult",
     "available_methods",
     "get_method",
     "register_method",

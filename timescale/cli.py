@@ -2,6 +2,8 @@
 
 ``timescale methods``   list the available methods and their parameters
 ``timescale demo``      run the invented demo scenario through every method
+``timescale run``       run a suite file into a results cube
+``timescale show``      describe a results cube: dims, metrics, per-method summary
 """
 
 from __future__ import annotations
@@ -63,6 +65,66 @@ def _cmd_demo(args) -> int:
     return 0
 
 
+def _cmd_run(args) -> int:
+    import signal
+
+    from .execute import run_suite
+    from .suite import Suite
+    from .summary import failure_table, method_table
+
+    suite = Suite.from_toml(args.suite)
+    out = Path(args.output)
+
+    def _terminate(signum, frame):  # SIGTERM: stop like Ctrl-C so the checkpoint is closed cleanly
+        raise KeyboardInterrupt
+
+    previous = signal.signal(signal.SIGTERM, _terminate)
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # cell warnings are recorded in the cube
+            res = run_suite(suite, workers=args.workers, scheduler=args.scheduler, output=out,
+                            resume=args.resume, overwrite=args.overwrite,
+                            checkpoint=args.checkpoint,
+                            progress=False if args.no_progress else None)
+    except KeyboardInterrupt:
+        ck = args.checkpoint or f"{out}.checkpoint"
+        print(f"timescale: interrupted; finished cells are kept in {ck}; run again with --resume "
+              "to continue", file=sys.stderr)
+        return 130
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+    print(res.summary().splitlines()[0])
+    print(method_table(res.cube))
+    failures = failure_table(res.cube)
+    if failures:
+        print(failures)
+    print(f"cube written to {out}")
+    if res.waveforms is not None:
+        print(f"waveforms written to {out.with_name(out.stem + '.waveforms' + (out.suffix or '.nc'))}")
+    return 0
+
+
+def _cmd_show(args) -> int:
+    from .cube import load_cube
+    from .summary import cube_overview, failure_table, method_table
+
+    ds = load_cube(args.cube)
+    a = ds.attrs
+    print(f"{args.cube}: {a.get('suite_name', a.get('title', ''))}")
+    if a.get("description"):
+        print(a["description"])
+    print(f"{a.get('n_cells', '?')} cells, {a.get('n_failed', '?')} failed, {a.get('n_warned', '?')} warned, "
+          f"{a.get('n_not_applicable', 0)} not applicable")
+    print(cube_overview(ds))
+    print()
+    print(method_table(ds))
+    failures = failure_table(ds)
+    if failures:
+        print()
+        print(failures)
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser (exposed for documentation and tests)."""
     p = argparse.ArgumentParser(prog="timescale", description="Compare analog pulse time-scaling methods.")
@@ -73,6 +135,21 @@ def build_parser() -> argparse.ArgumentParser:
     s.add_argument("-o", "--output", default="timescale-demo.nc", help="cube file to write (NetCDF)")
     s.add_argument("--seed", type=int, default=2026, help="root random seed")
     s.set_defaults(func=_cmd_demo)
+    s = sub.add_parser("run", help="run a suite file (TOML) into a results cube")
+    s.add_argument("suite", help="suite file (TOML)")
+    s.add_argument("-o", "--output", required=True, help="cube file to write (NetCDF)")
+    where = s.add_mutually_exclusive_group()
+    where.add_argument("--workers", type=int, default=None, metavar="N", help="run on N local processes")
+    where.add_argument("--scheduler", default=None, metavar="ADDRESS",
+                       help="run on a Dask scheduler (needs timescale[dask])")
+    s.add_argument("--resume", action="store_true", help="continue from the checkpoint of an interrupted run")
+    s.add_argument("--overwrite", action="store_true", help="replace an existing output (and old checkpoint)")
+    s.add_argument("--checkpoint", default=None, metavar="PATH", help="checkpoint file (default: OUTPUT.checkpoint)")
+    s.add_argument("--no-progress", action="store_true", help="no progress bar")
+    s.set_defaults(func=_cmd_run)
+    s = sub.add_parser("show", help="describe a results cube: dims, metrics, per-method summary")
+    s.add_argument("cube", help="cube file (NetCDF)")
+    s.set_defaults(func=_cmd_show)
     return p
 
 
@@ -81,7 +158,7 @@ def main(argv=None) -> int:
     args = build_parser().parse_args(argv)
     try:
         return int(args.func(args) or 0)
-    except (ValueError, TypeError, FileExistsError) as exc:
+    except (ValueError, TypeError, FileExistsError, ImportError) as exc:
         print(f"timescale: error: {exc}", file=sys.stderr)
         return 2
 
