@@ -80,17 +80,19 @@ def stretch(pulse: Pulse, method, factor: float, *, trials: int = 1, seed=None,
     m = get_method(method)
     rng = np.random.default_rng(seed)
     return _outcome(m, _check_pulse(pulse), _check_factor(factor), m.make_params(**params),
-                    technology or DEFAULT_TECHNOLOGY, rng, _check_trials(trials))
+                    technology or DEFAULT_TECHNOLOGY, rng, _check_trials(trials), reissue=True)
 
 
-def _outcome(m: Method, pulse, factor, params, technology, rng, trials) -> Outcome:
+def _outcome(m: Method, pulse, factor, params, technology, rng, trials, reissue=False) -> Outcome:
+    """Design, simulate and bill; timescale warnings are kept on the outcome (and shown to the
+    caller too when `reissue`)."""
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", TimescaleWarning)
         design = m.design(pulse, factor, params, technology)
         sim = m.simulate(pulse, design, params, rng, trials, technology)
         bill = m.bill(design, params, technology)
-    for w in caught:  # re-issue what was not ours, keep ours on the outcome
-        if not issubclass(w.category, TimescaleWarning):
+    for w in caught:  # re-issue what was not ours; ours only when asked
+        if reissue or not issubclass(w.category, TimescaleWarning):
             warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
     ours = tuple(dict.fromkeys(str(w.message) for w in caught if issubclass(w.category, TimescaleWarning)))
     out = sim.pulse
