@@ -57,6 +57,7 @@ from timescale.plugin import (
     Simulation,
     param,
 )
+from timescale.signal import resample_to
 
 __all__ = ["AnalogMemory", "AnalogMemoryParams", "AnalogMemoryDesign", "sample_band_limited",
            "readout_filter", "LOST_ENERGY_WARN"]
@@ -122,6 +123,9 @@ class AnalogMemoryDesign(Design):
         From the first cell's sample to the first output sample, s.
     max_hold : float
         Longest hold time of a cell (the last one read), s.
+    lost_before, lost_after : int
+        Cell slots of input before and after the written window; the output carries that many
+        baseline (zero) samples so that the metrics see what the record lost.
     """
 
     write_rate: float
@@ -135,6 +139,8 @@ class AnalogMemoryDesign(Design):
     readout_cutoff: float
     latency: float
     max_hold: float
+    lost_before: int = 0
+    lost_after: int = 0
 
 
 class AnalogMemory(Method):
@@ -176,10 +182,11 @@ class AnalogMemory(Method):
         # cells whose instant falls inside the input record (the rest are not read)
         available = int(math.floor((pulse.t_end - t_s) * f_w - 1e-9)) + 1
         used = max(2, min(p.cells, available))
+        # input periods (in cell slots) that fall before and after the written window
+        lost_before = int(math.floor(p.window_start * f_w + 1e-9))
+        lost_after = max(0, available - used)
         t_last = t_s + used / f_w
-        inside = (pulse.t >= t_s - 0.5 / f_w) & (pulse.t < t_last - 0.5 / f_w)
-        total = float(np.sum(pulse.values ** 2))
-        fraction = float(np.sum(pulse.values[inside] ** 2) / total) if total > 0 else 1.0
+        fraction = _energy_fraction(pulse, t_s - 0.5 / f_w, t_s + (used - 0.5) / f_w)
         f_r = f_w / factor
         cap = costs.capacitance_for_noise(p.noise_target, technology.temperature)
         # read starts once the last cell is written; sample k is taken at the end of its slot
@@ -203,7 +210,7 @@ class AnalogMemory(Method):
             factor=factor, notes=notes, write_rate=f_w, read_rate=f_r, cells=p.cells, cells_used=used,
             window_start=t_s, record_length=p.cells / f_w, record_energy_fraction=fraction,
             cell_capacitance=cap, readout_cutoff=p.readout_bandwidth * f_r, latency=latency,
-            max_hold=max_hold)
+            max_hold=max_hold, lost_before=lost_before, lost_after=lost_after)
 
     # -- simulate -----------------------------------------------------------------------------
     def simulate(self, pulse, design: AnalogMemoryDesign, params: AnalogMemoryParams, rng,
@@ -239,7 +246,17 @@ class AnalogMemory(Method):
             clean_values = finish(v)
             v = v + rng.normal(0.0, v_noise, size=(trials, m))
             clean = Pulse(clean_values, d.read_rate, t_read[0], pulse.units, f"{pulse.name} (noise-free)")
-        out = Pulse(finish(v), d.read_rate, t_read[0], pulse.units, f"{pulse.name} from analog memory")
+        # Input outside the record never reaches a cell: the readout shows the baseline there.
+        # The output keeps those zeros so that every metric sees the lost part of the pulse.
+        before, after = d.lost_before, d.lost_after
+        t_out0 = t_read[0] - before / d.read_rate
+
+        def pad(values):
+            return np.pad(values, ((0, 0), (before, after))) if before or after else values
+
+        if clean is not None:
+            clean = clean.with_values(pad(clean.values), t0=t_out0)
+        out = Pulse(pad(finish(v)), d.read_rate, t_out0, pulse.units, f"{pulse.name} from analog memory")
         settle = readout_settling_error(p.readout, d.readout_cutoff, d.read_rate, p.readout_order)
         metrics = {
             "record_length": Metric(d.record_length, "s", "input time the cell bank holds"),
@@ -284,6 +301,21 @@ class AnalogMemory(Method):
 
 
 # ---- helpers (pure functions, tested on their own) ----------------------------------------------
+
+def _energy_fraction(pulse: Pulse, start: float, stop: float) -> float:
+    """Fraction of the pulse's energy ∫x² dt that lies in [start, stop).
+
+    The band-limited pulse is first interpolated onto a grid 16 times finer (exact
+    trigonometric interpolation), so the window edges need not fall on input samples.
+    """
+    fine = resample_to(pulse, 16.0 * pulse.rate, n=16 * pulse.n)
+    e = fine.values ** 2
+    total = float(np.sum(e))
+    if total <= 0:
+        return 1.0
+    inside = (fine.t >= start) & (fine.t < stop)
+    return min(1.0, float(np.sum(e[inside]) / total))
+
 
 def _buffer_power(bandwidth: float, load: float, tech) -> float:
     """Supply power of a single-stage buffer of bandwidth `bandwidth` (Hz) into `load` (F), W."""
