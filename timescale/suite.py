@@ -442,12 +442,12 @@ class Suite:
         """
         if not isinstance(data, Mapping):
             raise _bad(where or "suite", data, "a table")
-        for k in data:
-            if k not in _TOP_KEYS:
-                raise _unknown("", k, _TOP_KEYS)
-        if "pulses" not in data:
-            raise ValueError("pulses: a suite needs at least one [[pulses]] entry")
         try:
+            for k in data:
+                if k not in _TOP_KEYS:
+                    raise _unknown("", k, _TOP_KEYS)
+            if "pulses" not in data:
+                raise ValueError("pulses: a suite needs at least one [[pulses]] entry")
             suite = cls(**dict(data), base_dir=base_dir)
             suite.plan()  # method-aware checks now, before anything runs
         except ValueError as exc:

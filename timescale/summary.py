@@ -99,10 +99,10 @@ def method_table(ds: xr.Dataset, metrics=METHOD_METRICS) -> str:
         header.append(f"{m} ({unit})" if unit else m)
     rows = []
     for meth in ds["method"].values:
-        st = np.asarray(ds["status"].sel(method=meth).values).ravel()
+        st = np.asarray(ds["status"].sel({"method": meth}).values).ravel()
         row = [str(meth)] + [str(int(np.sum(st == s))) for s in _STATUSES]
         for m in metrics:
-            vals = np.asarray(ds[m].sel(method=meth).values, dtype=float)
+            vals = np.asarray(ds[m].sel({"method": meth}).values, dtype=float)
             v = np.nanmedian(vals) if np.any(np.isfinite(vals)) else np.nan
             row.append(format_value(v, ds[m].attrs.get("units", ""), unit=False))
         rows.append(row)
