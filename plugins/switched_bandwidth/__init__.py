@@ -1,0 +1,479 @@
+"""Built-in method ``switched-bandwidth``: a delay filter whose bandwidth is switched while the
+pulse is stored in it.
+
+Principle (scaling theorem, Oppenheim & Willsky, *Signals and Systems*): an LTI delay filter of
+group delay τ is driven by a pulse shorter than τ. At an instant t_s after the input has ended
+and before the delayed output begins, every conductance and transconductance is divided by α
+while the capacitors keep their charge (A → A/α, B → B/α). From then on the stored natural
+response plays out α times slower (α > 1) or faster (α < 1): same peak, duration × α.
+
+Prototypes: Padé all-pass approximant of e^{−sτ} (default: flat magnitude, so the only error is
+phase), Bessel–Thomson (maximally flat delay, but its impulse response spreads as τ/√(2n−1),
+so short pulses need very high orders) and a constant-k LC ladder. Realizations: gm-C (each
+inductor a gyrator-C, L = C/(gm1·gm2)) and passive LC (bill only differs; the simulation is the
+ideal network, gm non-idealities do not apply).
+
+Simulation uses the exact piecewise-LTI kernel :mod:`timescale.lti`. With ``gm_limit`` set, the
+soft-limited path (RK4) is used: it is one to two orders of magnitude slower.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from timescale import costs, lti
+from timescale.plugin import (
+    Bill,
+    BillItem,
+    Design,
+    DesignWarning,
+    Method,
+    Metric,
+    Pulse,
+    SamplingWarning,
+    Simulation,
+    hookimpl,
+    param,
+)
+from timescale.signal import resample_to
+
+from . import prototypes
+from .prototypes import Prototype, build
+
+__all__ = ["SwitchedBandwidth", "SwitchedParams", "SwitchedDesign", "timescale_methods",
+           "prototypes", "passive_line", "gm_c_matrices"]
+
+_BOLTZMANN = costs.BOLTZMANN
+_MIN_NODE_C = 10e-15  # smallest node capacitance used, F (parasitics; common practice, no source)
+
+
+@dataclass(frozen=True)
+class SwitchedParams:
+    """Parameters of the ``switched-bandwidth`` method (every non-ideality defaults to off)."""
+
+    prototype: str = param("pade", doc="delay prototype", choices=("pade", "bessel", "ladder"))
+    realization: str = param("gm-c", doc="gm-C with gyrator-C inductors, or passive LC",
+                             choices=("gm-c", "lc"))
+    order: int = param(0, doc="prototype order (ladder: sections); 0 sizes it from the pulse")
+    max_order: int = param(40, doc="largest order (ladder: sections) the sizing may choose")
+    delay: float = param(0.0, units="s", doc="DC group delay; 0 sizes it from the pulse")
+    fidelity_target: float = param(0.02, doc="largest NRMSE of the unswitched delayed pulse")
+    leakage_target: float = param(1e-3, doc="largest input left / output started at the switch, "
+                                  "relative to the peaks")
+    repetition: float = param(0.0, units="s", doc="pulse repetition interval; 0 for a single pulse")
+    noise_target: float = param(1e-3, units="V", doc="output rms noise the node capacitance is sized for")
+    termination: str = param("matched", doc="ladder ends", choices=("matched", "half-section"))
+    jitter: float = param(0.0, units="s", doc="rms jitter of the switch instant")
+    transition: float = param(0.0, units="s", doc="time over which gm ramps linearly to its new value")
+    transition_segments: int = param(16, doc="constant pieces approximating the gm ramp")
+    gm_mismatch: float = param(0.0, doc="relative rms mismatch of each transconductor, per trial")
+    gm_ro: float = param(0.0, doc="transconductor intrinsic gain gm·r_o; 0 for ideal (no output conductance)")
+    noise: bool = param(False, doc="add transconductor thermal noise 4kTγ·gm (exact covariance + samples)")
+    noise_gamma: float = param(0.0, doc="excess noise factor γ; 0 takes the technology's")
+    gm_limit: float = param(0.0, units="V", doc="soft-limit (tanh) input range of every transconductor; 0 for linear")
+    substeps: int = param(8, doc="RK4 steps per sample on the soft-limit path")
+
+
+@dataclass(frozen=True, kw_only=True)
+class SwitchedDesign(Design):
+    """A sized switched-bandwidth delay filter (SI units).
+
+    Attributes
+    ----------
+    prototype : str
+        Prototype family.
+    order : int
+        Order (ladder: sections); the state count is ``states``.
+    states : int
+        Number of capacitor nodes.
+    delay : float
+        DC group delay τ, s.
+    t_switch : float
+        Switch instant on the input's clock, s.
+    record_end : float
+        End of the simulated output record, s.
+    sim_rate : float
+        Simulation (and output) sample rate, Hz.
+    input_span : tuple of float
+        First and last instants where |x| exceeds leakage_target × peak, s.
+    leakage_design : float
+        max(input left after t_s, output already started before t_s), relative to the peaks.
+    fidelity_design : float
+        NRMSE of the unswitched delayed pulse against x(t − τ).
+    bw_in : float
+        99 % occupied bandwidth of the input, Hz.
+    node_capacitance : float
+        Capacitance of each node, F.
+    gms : tuple of float
+        Every transconductance before the switch, S.
+    output_noise_factor : float
+        Output noise variance × C_node / (kTγ) of the structure (dimensionless).
+    busy_time : float
+        From the first input instant to the end of the stretched output, s.
+    A, B, C : tuple
+        Nominal state space (nested tuples; A, B in 1/s).
+    D : float
+    lc_sections : int
+        Sections of the passive LC line with the same delay and fidelity (0 if none fits).
+    lc_inductance, lc_capacitance : float
+        Its per-section L (H) and C (F), Z0 = 50 Ω.
+    lc_area : float
+        Its area (spirals by the modified Wheeler formula + capacitors), m².
+    """
+
+    prototype: str
+    order: int
+    states: int
+    delay: float
+    t_switch: float
+    record_end: float
+    sim_rate: float
+    input_span: tuple[float, float]
+    leakage_design: float
+    fidelity_design: float
+    bw_in: float
+    node_capacitance: float
+    gms: tuple[float, ...]
+    output_noise_factor: float
+    busy_time: float
+    A: tuple = ()
+    B: tuple = ()
+    C: tuple = ()
+    D: float = 0.0
+    elements: dict = field(default_factory=dict)
+    lc_sections: int = 0
+    lc_inductance: float = 0.0
+    lc_capacitance: float = 0.0
+    lc_area: float = 0.0
+
+    def system(self) -> lti.StateSpace:
+        """The nominal state-space model."""
+        return lti.StateSpace(np.array(self.A), np.array(self.B), np.array(self.C), self.D)
+
+
+# ------------------------------------------------------------------------------------------
+def gm_c_matrices(A, B, node_c: float, temperature: float, gamma: float):
+    """Noise intensity Q of a gm-C realization: every transconductor (nonzero of A or B) puts a
+    current of one-sided density 4kTγ·gm on its output node; gm = C_node·|entry|.
+
+    Returns Q (two-sided, V²/s): diag 2kTγ·(Σ_j|A_ij| + |B_i|)/C_node.
+    """
+    A = np.asarray(A)
+    B = np.asarray(B)
+    g = np.abs(A).sum(axis=-1) + np.abs(B)
+    d = 2.0 * _BOLTZMANN * temperature * gamma * g / node_c
+    return d[..., :, None] * np.eye(A.shape[-1])
+
+
+def _fidelity(proto: Prototype, f, P):
+    """NRMSE of the unswitched output against x(t − τ): weighted spectral error (Parseval)."""
+    H = proto.response(f)
+    err = np.abs(H - np.exp(-2j * np.pi * f * proto.delay)) ** 2
+    return float(math.sqrt(np.sum(P * err) / np.sum(P)))
+
+
+def _search_order(kind, delay, f, P, target, lo, hi, termination):
+    best = None
+    for n in range(lo, hi + 1):
+        pr = build(kind, n, delay, termination)
+        e = _fidelity(pr, f, P)
+        if best is None or e < best[1]:
+            best = (pr, e)
+        if e <= target:
+            return pr, e, True
+    return best[0], best[1], False
+
+
+def passive_line(delay: float, f, P, target: float, technology, max_sections: int = 400,
+                 z0: float = 50.0):
+    """The constant-k passive LC line (Z0 = `z0`) with DC group delay `delay` that meets the
+    fidelity `target`; returns (sections, L, C, area) or None when none up to `max_sections`."""
+    # fidelity error of the ladder falls roughly as 1/N²: bisection on the section count
+    lo, hi = 1, max_sections
+    if _fidelity(prototypes.ladder(hi, delay), f, P) > target:
+        return None
+    while lo < hi:
+        mid = (lo + hi) // 2
+        if _fidelity(prototypes.ladder(mid, delay), f, P) <= target:
+            hi = mid
+        else:
+            lo = mid + 1
+    pr = prototypes.ladder(lo, delay, z0=z0)
+    L, C = pr.elements["L"], pr.elements["C"]
+    spiral = costs.spiral_for_inductance(L, technology.inductor_track_width,
+                                         technology.inductor_track_spacing)
+    area = lo * (spiral.area + C / technology.cap_density)
+    return lo, L, C, area
+
+
+class SwitchedBandwidth(Method):
+    """Delay filter with switched bandwidth (see the module docstring)."""
+
+    name = "switched-bandwidth"
+    summary = "delay filter whose gm are scaled by 1/α while the pulse is stored in it"
+    Params = SwitchedParams
+    version = "0.1.0"
+    identity_tolerance = 0.03
+    factor_tolerance = 0.05
+
+    # -------------------------------------------------------------------------------------
+    def design(self, pulse: Pulse, factor: float, params: SwitchedParams, technology) -> SwitchedDesign:
+        a = float(factor)
+        if not (math.isfinite(a) and a > 0):
+            raise ValueError(f"factor must be finite and > 0, got {factor!r}")
+        x = pulse.row(0)
+        for name in ("fidelity_target", "leakage_target"):
+            v = getattr(params, name)
+            if not 0 < v < 1:
+                raise ValueError(f"{name} must lie strictly between 0 and 1, got {v!r}")
+        for name in ("delay", "repetition", "jitter", "transition", "gm_mismatch", "gm_ro",
+                     "noise_gamma", "gm_limit"):
+            if getattr(params, name) < 0:
+                raise ValueError(f"{name} must be >= 0, got {getattr(params, name)!r}")
+        if params.noise_target <= 0:
+            raise ValueError(f"noise_target must be > 0 V, got {params.noise_target!r}")
+        if params.order < 0 or params.max_order < 1:
+            raise ValueError(f"order must be >= 0 and max_order >= 1, got {params.order!r}, {params.max_order!r}")
+        if params.transition_segments < 1 or params.substeps < 1:
+            raise ValueError("transition_segments and substeps must be >= 1")
+        v = x.values
+        peak = float(np.max(np.abs(v)))
+        if peak == 0:
+            raise ValueError("pulse is identically zero; nothing to delay")
+        thr = params.leakage_target
+        on = np.flatnonzero(np.abs(v) > thr * peak)
+        t_a, t_b = float(x.t[on[0]]), float(x.t[on[-1]])
+        span = max(t_b - t_a, 2 * x.dt)
+        bw = float(x.occupied_bandwidth())
+        # spectrum weights for the fidelity criterion (zero-padded, one-sided)
+        nfft = 1 << int(math.ceil(math.log2(8 * x.n)))
+        f, X = x.spectrum(nfft)
+        P = np.abs(X) ** 2
+        keep = P > 1e-16 * P.max()
+        f, P = f[keep], P[keep]
+
+        m = 1 if a >= 1 else int(math.ceil(1.0 / a - 1e-9))  # finer grid for compression
+        sim_rate = x.rate * m
+        if params.delay > 0 and params.delay < span:
+            raise ValueError(
+                f"delay {params.delay:.4g} s is shorter than the pulse ({span:.4g} s above "
+                f"{thr:g} of its peak): the input would still be on when the output starts; "
+                "give a longer delay or 0 to size it")
+        tau = params.delay if params.delay > 0 else 1.2 * span
+        kind = params.prototype
+        hi = params.max_order
+        notes = []
+        for attempt in range(16):
+            if params.order > 0:
+                proto = build(kind, params.order, tau, params.termination)
+                fid = _fidelity(proto, f, P)
+                ok = fid <= params.fidelity_target
+            else:
+                proto, fid, ok = _search_order(kind, tau, f, P, params.fidelity_target, 1, hi,
+                                               params.termination)
+            if not ok and params.order == 0:
+                raise ValueError(
+                    f"a {kind} prototype with delay {tau:.4g} s needs more than max_order={hi} "
+                    f"{'sections' if kind == 'ladder' else 'poles'} to keep the delayed pulse "
+                    f"within fidelity_target={params.fidelity_target:g} (best {fid:.3g}); raise "
+                    "max_order or fidelity_target"
+                    + (", or use prototype='pade' (a Bessel-Thomson impulse response spreads as "
+                       "τ/√(2n−1))" if kind == "bessel" else ""))
+            t_s, leak, t_tail = _switch_instant(x, proto, thr)
+            if leak <= thr or params.delay > 0:
+                break
+            tau *= 1.15
+        else:
+            raise ValueError(
+                f"no delay up to {tau:.4g} s separates input and output below leakage_target="
+                f"{thr:g}; raise leakage_target")
+        if params.order > 0 and fid > params.fidelity_target:
+            warnings.warn(f"order {params.order} gives NRMSE {fid:.3g} of the delayed pulse, above "
+                          f"fidelity_target {params.fidelity_target:g}", DesignWarning, stacklevel=2)
+        if leak > thr:
+            warnings.warn(f"leakage at the switch instant is {leak:.3g} (target {thr:g}): the input "
+                          "is still on or the output has begun", DesignWarning, stacklevel=2)
+        record_end = t_s + a * (t_tail - t_s) + 0.25 * span
+        busy = record_end - t_a
+        if params.repetition > 0 and busy > params.repetition:
+            amax = (params.repetition - 0.25 * span - (t_s - t_a)) / (t_tail - t_s)
+            raise ValueError(
+                f"the stretched output ends {busy:.4g} s after the pulse starts, beyond the "
+                f"repetition interval {params.repetition:.4g} s; the largest factor that fits is "
+                f"about {max(amax, 0):.3g}")
+        if bw / a > 0.4 * sim_rate:
+            warnings.warn(f"the compressed pulse occupies {bw / a:.4g} Hz, near the Nyquist "
+                          f"frequency of {sim_rate:.4g} Hz samples", SamplingWarning, stacklevel=2)
+        sysm = proto.system
+        A = np.asarray(sysm.A)
+        B = np.asarray(sysm.B)
+        # node capacitance from the noise target: var = F·kTγ/C (Lyapunov of the structure)
+        gamma = params.noise_gamma or technology.gm_noise_gamma
+        T = technology.temperature
+        Qn = gm_c_matrices(A, B, 1.0, 1.0 / (2 * _BOLTZMANN), 0.5)  # Q for kTγ = 1, C = 1
+        Pn = lti.stationary_covariance(A, Qn)
+        F = float(np.asarray(sysm.C) @ Pn @ np.asarray(sysm.C))
+        c_node = max(F * _BOLTZMANN * T * gamma / params.noise_target ** 2, _MIN_NODE_C)
+        gms = tuple(float(g) for g in c_node * np.abs(np.concatenate([A[A != 0], B[B != 0]])))
+        if max(gms) * max(1.0, 1.0 / a) > technology.gm_max:
+            notes.append(f"largest gm {max(gms) * max(1, 1 / a):.3g} S exceeds one cell "
+                         f"({technology.gm_max:.3g} S): cells in parallel")
+        lc = passive_line(proto.delay, f, P, params.fidelity_target, technology)
+        if lc is None:
+            notes.append("no passive LC line up to 400 sections meets the fidelity target")
+            lc = (0, 0.0, 0.0, 0.0)
+        notes.append(f"{kind} order {proto.order if kind != 'ladder' else proto.order // 2}, "
+                     f"delay {proto.delay:.4g} s, switch at {t_s:.4g} s")
+        return SwitchedDesign(
+            factor=a, notes=tuple(notes), prototype=kind,
+            order=proto.order if kind != "ladder" else proto.order // 2,
+            states=proto.order, delay=proto.delay, t_switch=t_s, record_end=record_end,
+            sim_rate=sim_rate, input_span=(t_a, t_b), leakage_design=leak,
+            fidelity_design=fid, bw_in=bw, node_capacitance=c_node, gms=gms,
+            output_noise_factor=F, busy_time=busy,
+            A=tuple(map(tuple, A)), B=tuple(B), C=tuple(np.asarray(sysm.C)),
+            D=float(np.asarray(sysm.D)), elements=dict(proto.elements),
+            lc_sections=lc[0], lc_inductance=lc[1], lc_capacitance=lc[2], lc_area=lc[3])
+
+    # -------------------------------------------------------------------------------------
+    def simulate(self, pulse, design: SwitchedDesign, params: SwitchedParams, rng, trials=1,
+                 technology=None):
+        from timescale.technology import DEFAULT_TECHNOLOGY
+
+        tech = technology or DEFAULT_TECHNOLOGY
+        a = design.factor
+        x = pulse.row(0)
+        rate = design.sim_rate
+        n_out = int(math.ceil((design.record_end - x.t0) * rate)) + 1
+        if rate != x.rate:
+            u = resample_to(x, rate, t_start=x.t0, n=x.n * int(round(rate / x.rate))).values
+        else:
+            u = x.values
+        u = np.concatenate([u, np.zeros(max(n_out - u.size, 0))])[:max(n_out, u.size)]
+        N = u.size
+        dt = 1.0 / rate
+        A = np.array(design.A)
+        B = np.array(design.B)
+        C = np.array(design.C)
+        passive = params.realization == "lc"
+        if passive and (params.gm_mismatch or params.gm_ro or params.gm_limit):
+            warnings.warn("gm_mismatch, gm_ro and gm_limit do not apply to a passive LC "
+                          "realization; ignored", DesignWarning, stacklevel=2)
+        K = int(trials)
+        varying = False
+        # draws in a fixed order so the same seed gives the same result
+        mis_a = rng.standard_normal((K,) + A.shape)
+        mis_b = rng.standard_normal((K,) + B.shape)
+        jit = rng.standard_normal(K)
+        if params.gm_mismatch > 0 and not passive:
+            A = A * (1 + params.gm_mismatch * mis_a * (A != 0))
+            B = B * (1 + params.gm_mismatch * mis_b * (B != 0))
+            varying = True
+        if params.gm_ro > 0 and not passive:
+            # each transconductor loads its output node with gds = gm/(gm·r_o)
+            loss = (np.abs(A).sum(axis=-1) + np.abs(B)) / params.gm_ro
+            A = A - loss[..., :, None] * np.eye(A.shape[-1])
+        Q = None
+        if params.noise:
+            gamma = params.noise_gamma or tech.gm_noise_gamma
+            Q = gm_c_matrices(A, B, design.node_capacitance, tech.temperature, gamma)
+        sysm = lti.StateSpace(A, B, C, design.D, Q)
+        t_sw = design.t_switch - x.t0
+        if params.jitter > 0:
+            t_sw = t_sw + params.jitter * jit
+            varying = True
+        sched = lti.Schedule.switched(sysm, a, t_sw, ramp=params.transition,
+                                      segments=params.transition_segments)
+        if params.gm_limit > 0 and not passive:
+            y = lti.simulate_nonlinear(sched, u, dt, params.gm_limit, substeps=params.substeps)
+            path = "soft-limited gm-C, RK4"
+        else:
+            y = lti.simulate(sched, u, dt)
+            path = "exact piecewise-LTI (FOH, lifted)"
+        y = np.broadcast_to(y, (K, N)).copy()
+        t = x.t0 + np.arange(N) * dt
+        peak = np.max(np.abs(y), axis=1)
+        ts_k = x.t0 + np.broadcast_to(np.atleast_1d(t_sw), (K,))
+        leak = np.array([abs(np.interp(ts_k[k], t, y[k])) for k in range(K)]) / peak
+        mets = {
+            "leakage": Metric(leak, "", "output at the switch instant relative to its peak"),
+            "delay": Metric(design.delay, "s", "DC group delay of the filter"),
+            "bandwidth_used": Metric(design.bw_in * max(1.0, 1.0 / a), "Hz",
+                                     "highest signal bandwidth the filter passes"),
+            "filter_order": Metric(float(design.states), "", "number of filter states"),
+            "lc_area": Metric(design.lc_area, "m²", "area of the passive LC line alternative"),
+        }
+        clean = None
+        out = Pulse(values=y, rate=rate, t0=x.t0, units=x.units, name=f"{x.name} switched")
+        if params.noise:
+            var = np.broadcast_to(lti.output_variance(sched, N, dt), (K, N))
+            noise = lti.sample_noise(sched, N, dt, rng, trials=K)
+            kpk = np.argmax(np.abs(y), axis=1)
+            rms = np.sqrt(var[np.arange(K), kpk])
+            mets["noise_rms"] = Metric(rms, "V", "output rms noise at the output peak")
+            mets["snr_db"] = Metric(20 * np.log10(peak / rms), "dB", "output peak over rms noise")
+            clean = out
+            out = out.with_values(y + noise)
+        return Simulation(pulse=out, metrics=mets, path=path, clean=clean)
+
+    # -------------------------------------------------------------------------------------
+    def bill(self, design: SwitchedDesign, params: SwitchedParams, technology) -> Bill:
+        a = design.factor
+        n = design.states
+        bw = design.bw_in * max(1.0, 1.0 / a)
+        if params.realization == "lc":
+            items = [BillItem("spiral inductors", area=design.lc_area, count=design.lc_sections,
+                              note="constant-k line, Z0 = 50 Ω, modified Wheeler (Mohan 1999)"),
+                     BillItem("switch network", area=technology.switch_area * 2 * design.lc_sections,
+                              count=2 * design.lc_sections, note="element-bank switches")]
+            counts = {"inductors": design.lc_sections, "capacitors": design.lc_sections}
+            return Bill.from_items(items, active_time=design.busy_time, bw_internal=bw, counts=counts)
+        c = design.node_capacitance
+        speed = max(1.0, 1.0 / a)  # bias for the faster of the two states
+        cells = sum(int(math.ceil(g * speed / technology.gm_max)) for g in design.gms)
+        current = sum(costs.bias_current(g * speed, technology.gm_over_id) for g in design.gms)
+        items = [
+            BillItem("node capacitors", area=n * c / technology.cap_density, count=n,
+                     note=f"{c:.3g} F each, sized for {params.noise_target:.3g} V rms (kT/C)"),
+            BillItem("transconductors", area=cells * technology.gm_cell_area,
+                     power=current * technology.supply, count=cells,
+                     note=f"gm/I_D = {technology.gm_over_id:g} S/A"),
+            BillItem("bias switch", area=technology.switch_area, count=1,
+                     note="scales every bias current by 1/α"),
+        ]
+        counts = {"transconductors": cells, "capacitors": n}
+        return Bill.from_items(items, active_time=design.busy_time, bw_internal=bw, counts=counts)
+
+
+def _switch_instant(x: Pulse, proto: Prototype, thr: float):
+    """Best switch instant for the unswitched response: minimizes the larger of the input left
+    after it and the output already present before it (both relative to their peaks).
+
+    Returns (t_s, leakage, t_tail) with t_tail the last instant |y| > thr·peak.
+    """
+    t_end = x.t_end + proto.delay + 2 * (x.t_end - x.t0)
+    n = int(math.ceil((t_end - x.t0) * x.rate)) + 1
+    u = np.concatenate([x.values, np.zeros(max(n - x.n, 0))])
+    y = lti.simulate(proto.system, u, x.dt)[0]
+    t = x.t0 + np.arange(u.size) * x.dt
+    ax = np.abs(u) / np.max(np.abs(u))
+    ay = np.abs(y) / np.max(np.abs(y))
+    left = np.maximum.accumulate(ax[::-1])[::-1]  # input still to come at or after t
+    started = np.maximum.accumulate(ay)  # output already seen at or before t
+    cost = np.maximum(np.concatenate([left[1:], [0.0]]), started)
+    k = int(np.argmin(cost))
+    k_last = k
+    while k_last + 1 < cost.size and cost[k_last + 1] == cost[k]:
+        k_last += 1
+    ts = t[k] + 0.5 * ((k_last - k) + 1) * x.dt  # middle of the best gap, between samples
+    tail = np.flatnonzero(ay > thr)
+    return float(ts), float(cost[k]), float(t[tail[-1]])
+
+
+@hookimpl
+def timescale_methods():
+    return [SwitchedBandwidth()]

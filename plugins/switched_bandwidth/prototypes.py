@@ -1,0 +1,244 @@
+"""Delay prototypes as well-conditioned state-space models with their element values.
+
+Every prototype is a cascade of first- and second-order gm-C sections (Bessel–Thomson, Padé
+all-pass) or a constant-k LC ladder whose inductor currents are carried as gyrator-C node
+voltages (i·Z0). In each, a state is a node voltage on a capacitor, a nonzero entry of A or B
+is one transconductor (diagonal entries are damping / termination conductances) and C, D are
+the read-out. With equal node capacitance C_node, every transconductance is C_node·|A_ij|.
+
+Sign convention: H(s) = C (sI − A)⁻¹ B + D, signals e^{+jωt}; the ideal delay is e^{−sτ}.
+"""
+
+from __future__ import annotations
+
+import functools
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import signal as ss
+
+from timescale.lti import StateSpace, dc_group_delay
+
+__all__ = ["Prototype", "bessel", "pade", "ladder", "build", "pade_group_delay"]
+
+
+@dataclass(frozen=True, eq=False)
+class Prototype:
+    """A delay prototype.
+
+    Attributes
+    ----------
+    kind : str
+        "bessel", "pade" or "ladder".
+    order : int
+        Number of states (for the ladder: 2 × sections).
+    delay : float
+        DC group delay, s.
+    system : StateSpace
+        The realization (A, B in 1/s).
+    poles : ndarray
+        Poles, rad/s (empty for the ladder).
+    elements : dict
+        Physical element values (SI): per-section ω0 (rad/s) and Q, or ladder L, C, Z0.
+    """
+
+    kind: str
+    order: int
+    delay: float
+    system: StateSpace
+    poles: np.ndarray
+    elements: dict
+
+    def response(self, f) -> np.ndarray:
+        """H(j2πf) at frequencies f (Hz)."""
+        s = 2j * np.pi * np.asarray(f, dtype=float)
+        if self.kind == "bessel":
+            p = self.poles
+            return np.prod((-p)[None, :] / (s[:, None] - p[None, :]), axis=1)
+        if self.kind == "pade":
+            p = self.poles
+            return np.prod((-s[:, None] - p[None, :]) / (s[:, None] - p[None, :]), axis=1)
+        e = self.elements
+        return _ladder_response(s, e["sections"], e["L"], e["C"], e["Z0"], e["termination"])
+
+
+def _cascade(sections):
+    """Series connection of SISO sections (A, B, C, D): the output of one drives the next."""
+    A, B, C, D = sections[0]
+    for A2, B2, C2, D2 in sections[1:]:
+        n1, n2 = A.shape[0], A2.shape[0]
+        An = np.zeros((n1 + n2, n1 + n2))
+        An[:n1, :n1] = A
+        An[n1:, :n1] = np.outer(B2, C)
+        An[n1:, n1:] = A2
+        B = np.concatenate([B, B2 * D])
+        C = np.concatenate([D2 * C, C2])
+        A, D = An, D2 * D
+    return A, B, C, D
+
+
+def _sections_from_poles(poles, allpass: bool):
+    """First/second-order sections, ordered by rising Q (common practice, no source)."""
+    real = sorted(p.real for p in poles if abs(p.imag) < 1e-9 * abs(p))
+    pairs = sorted((p for p in poles if p.imag > 1e-9 * abs(p)), key=lambda p: abs(p) / (-2 * p.real))
+    secs, elems = [], []
+    for p in real:
+        a = -p
+        if allpass:  # (a − s)/(a + s) = −1 + 2a/(s + a)
+            secs.append((np.array([[-a]]), np.array([a]), np.array([2.0]), -1.0))
+        else:
+            secs.append((np.array([[-a]]), np.array([a]), np.array([1.0]), 0.0))
+        elems.append({"w0": a, "Q": 0.5, "order": 1})
+    for p in pairs:
+        w0 = abs(p)
+        q = w0 / (-2 * p.real)
+        # two-integrator loop: v1 band-pass node, v2 low-pass node, balanced gm = ω0·C
+        A = np.array([[-w0 / q, -w0], [w0, 0.0]])
+        B = np.array([w0, 0.0])
+        if allpass:  # 1 − 2(ω0/Q)s/D(s) = 1 − (2/Q)·v1
+            secs.append((A, B, np.array([-2.0 / q, 0.0]), 1.0))
+        else:
+            secs.append((A, B, np.array([0.0, 1.0]), 0.0))
+        elems.append({"w0": w0, "Q": q, "order": 2})
+    return secs, elems
+
+
+@functools.lru_cache(maxsize=128)
+def _unit_bessel_poles(order: int) -> np.ndarray:
+    """Poles of the unit-DC-delay Bessel–Thomson filter (scipy, norm='delay')."""
+    _, p, _ = ss.bessel(order, 1.0, analog=True, norm="delay", output="zpk")
+    p = np.asarray(p)
+    p.setflags(write=False)
+    return p
+
+
+def _check_order(order, delay):
+    if isinstance(order, bool) or not isinstance(order, (int, np.integer)) or order < 1:
+        raise ValueError(f"order must be a whole number >= 1, got {order!r}")
+    if not (isinstance(delay, (int, float, np.floating)) and math.isfinite(delay) and delay > 0):
+        raise ValueError(f"delay must be finite and > 0 s, got {delay!r}")
+
+
+def bessel(order: int, delay: float) -> Prototype:
+    """Bessel–Thomson low-pass of `order` with DC group delay `delay` (s).
+
+    Poles from ``scipy.signal.bessel(order, 1, analog=True, norm='delay')`` (unit DC group
+    delay; Thomson 1949) divided by `delay`.
+    """
+    _check_order(order, delay)
+    p = _unit_bessel_poles(int(order)) / delay
+    secs, elems = _sections_from_poles(p, allpass=False)
+    A, B, C, D = _cascade(secs)
+    return Prototype("bessel", order, float(delay), StateSpace(A, B, C, D), p, {"sections": elems})
+
+
+def pade(order: int, delay: float) -> Prototype:
+    """Padé [n/n] all-pass approximant of e^{−sτ}, τ = `delay`.
+
+    The [n/n] Padé denominator of e^{−sτ} is the reverse Bessel polynomial θ_n(sτ/2), so its
+    poles are 2/τ times the unit-delay Bessel poles; the zeros mirror them (|H| = 1).
+    """
+    _check_order(order, delay)
+    p = 2.0 * _unit_bessel_poles(int(order)) / delay
+    secs, elems = _sections_from_poles(p, allpass=True)
+    A, B, C, D = _cascade(secs)
+    return Prototype("pade", order, float(delay), StateSpace(A, B, C, D), p, {"sections": elems})
+
+
+def pade_group_delay(order: int, delay: float, w) -> np.ndarray:
+    """Group delay (s) of the Padé all-pass at angular frequencies `w` (rad/s): the sum over
+    poles p of 2·(−Re p)/((ω − Im p)² + Re p²)."""
+    _, p, _ = ss.bessel(order, 1.0, analog=True, norm="delay", output="zpk")
+    p = 2.0 * np.asarray(p) / delay
+    w = np.asarray(w, dtype=float)[..., None]
+    return np.sum(2 * (-p.real) / ((w - p.imag) ** 2 + p.real ** 2), axis=-1)
+
+
+def _ladder_matrices(sections: int, termination: str):
+    """Normalized ladder (per-section delay 1 s, Z0 = 1): states [i1·Z0, v1, …, iN·Z0, vN].
+
+    Series L then shunt C per section, source resistance Z0 before the first inductor, load
+    Z0 across the last capacitor. "half-section" makes the first inductor L/2 and the last
+    capacitor C/2 (mid-series / mid-shunt ends, a closer match to the image impedance).
+    """
+    N = sections
+    n = 2 * N
+    A = np.zeros((n, n))
+    B = np.zeros(n)
+    lk = np.ones(N)
+    ck = np.ones(N)
+    if termination == "half-section":
+        lk[0] = 0.5
+        ck[-1] = 0.5
+    for k in range(N):
+        i, v = 2 * k, 2 * k + 1
+        # L di/dt = v_prev − v_k   (scaled: d(iZ0)/dt = (v_prev − v_k)/t_sec for L = Z0·t_sec)
+        A[i, v] = -1.0 / lk[k]
+        if k == 0:
+            A[i, i] = -1.0 / lk[k]  # source resistance Z0: v_prev = u − Z0·i1
+            B[i] = 1.0 / lk[k]
+        else:
+            A[i, v - 2] = 1.0 / lk[k]
+        # C dv/dt = i_k − i_{k+1}
+        A[v, i] = 1.0 / ck[k]
+        if k < N - 1:
+            A[v, i + 2] = -1.0 / ck[k]
+        else:
+            A[v, v] = -1.0 / ck[k]  # load Z0
+    C = np.zeros(n)
+    C[-1] = 2.0  # read-out gain 2: matched DC gain 1/2 → 1
+    return A, B, C
+
+
+def _ladder_response(s, N, L, C, Z0, termination):
+    lk = np.full(N, L)
+    ck = np.full(N, C)
+    if termination == "half-section":
+        lk[0] *= 0.5
+        ck[-1] *= 0.5
+    a = np.ones_like(s)
+    b = np.zeros_like(s)
+    c = np.zeros_like(s)
+    d = np.ones_like(s)
+    for k in range(N):  # chain (ABCD) matrices: series L then shunt C
+        z = s * lk[k]
+        a, b, c, d = a, a * z + b, c, c * z + d
+        y = s * ck[k]
+        a, b, c, d = a + b * y, b, c + d * y, d
+    RL = Rs = Z0
+    return 2.0 * RL / (a * RL + b + Rs * (c * RL + d))
+
+
+def ladder(sections: int, delay: float, termination: str = "matched", z0: float = 50.0) -> Prototype:
+    """Constant-k LC ladder of `sections` (series L, shunt C) with DC group delay `delay`.
+
+    Per section L = Z0·t_s, C = t_s/Z0 with t_s = √(LC) the section delay; cutoff
+    f_c = 1/(π√(LC)) (Pozar, *Microwave Engineering*, from memory). t_s is set so that the
+    whole terminated line, read out with gain 2, has DC group delay `delay`.
+    """
+    _check_order(sections, delay)
+    if termination not in ("matched", "half-section"):
+        raise ValueError(f"termination must be 'matched' or 'half-section', got {termination!r}")
+    A, B, C = _ladder_matrices(sections, termination)
+    # DC group delay of the unit line from its chain matrices: −arg H(jω)/ω at ω·N ≪ 1
+    # (error of relative order (ωN)², below 1e-12 here); a dense solve would be O(N³)
+    w = 1e-7 / sections
+    unit = float(-np.angle(_ladder_response(np.array([1j * w]), sections, 1.0, 1.0, 1.0,
+                                             termination))[0] / w)
+    t_sec = delay / unit
+    sysm = StateSpace(A / t_sec, B / t_sec, C, 0.0)
+    elems = {"sections": int(sections), "L": z0 * t_sec, "C": t_sec / z0, "Z0": float(z0),
+             "section_delay": t_sec, "cutoff": 1.0 / (math.pi * t_sec), "termination": termination}
+    return Prototype("ladder", 2 * sections, float(delay), sysm, np.array([]), elems)
+
+
+def build(kind: str, order: int, delay: float, termination: str = "matched") -> Prototype:
+    """Build a prototype by family; for the ladder `order` counts sections."""
+    if kind == "bessel":
+        return bessel(order, delay)
+    if kind == "pade":
+        return pade(order, delay)
+    if kind == "ladder":
+        return ladder(order, delay, termination)
+    raise ValueError(f"prototype must be 'bessel', 'pade' or 'ladder', got {kind!r}")
