@@ -278,10 +278,22 @@ def _var_display(da):
     return k, axis_label(da.attrs.get("long_name") or da.name, da.attrs.get("units", ""))
 
 
+_TITLE_NAMES = {
+    "nrmse": "NRMSE", "sndr_db": "SNDR", "correlation": "Correlation with the ideal",
+    "bw_out": "Output 99 % bandwidth", "bw_in": "Input 99 % bandwidth", "area": "Silicon area",
+    "power": "Active power", "energy_per_pulse": "Energy per pulse", "latency": "Latency",
+    "fitted_factor": "Fitted factor", "achieved_factor": "Achieved factor",
+    "jitter_snr_out_db": "Jitter-limited SNR of the output", "bw_internal": "Internal bandwidth",
+}
+
+
 def _short_name(da):
-    """A compact name for titles (the variable name for dimensionless ratios like NRMSE)."""
-    ln = da.attrs.get("long_name") or str(da.name)
-    return ln
+    """A compact name for titles (the long name for variables not in the table)."""
+    name = _TITLE_NAMES.get(str(da.name))
+    if name:
+        return name
+    ln = str(da.attrs.get("long_name") or da.name)
+    return ln[:1].upper() + ln[1:]
 
 
 def _auto_log(values):
@@ -325,12 +337,21 @@ def _failed_any(ds, method, keep):
     return np.any(arr == "failed", axis=-1)
 
 
-def _legend(ax, title=None, **kw):
+def _legend(ax, where, title=None, **kw):
+    """Legend inside (``where`` True) or to the right of the panel ("outside"); None if False."""
+    if where is False or where is None:
+        return None
+    if where not in (True, "outside"):
+        raise ValueError(f"legend must be True, False or 'outside', got {where!r}")
     handles, labels = ax.get_legend_handles_labels()
     if not handles:
         return None
-    return ax.legend(handles, labels, title=title, fontsize="small", title_fontsize="small",
-                     framealpha=0.9, **kw)
+    if where == "outside":
+        kw = {"loc": "upper left", "bbox_to_anchor": (1.02, 1.0), "borderaxespad": 0.0}
+    leg = ax.legend(handles, labels, title=title, fontsize="small", title_fontsize="small",
+                    framealpha=0.9, **kw)
+    leg._legend_box.align = "left"  # notes in the title read as a left-aligned block
+    return leg
 
 
 def _finish(ax):
@@ -473,7 +494,8 @@ def plot_waveforms(outcomes, *, ax=None, trial=0, residual=True, window=None, ti
     window : (float, float), optional
         τ limits, s (default: where the traces are above 1 % of their peak, with a margin).
     title : str, optional
-    legend : bool
+    legend : bool or "outside"
+        Draw a legend inside the panel, to its right ("outside"), or not.
 
     Returns
     -------
@@ -559,7 +581,7 @@ def plot_waveforms(outcomes, *, ax=None, trial=0, residual=True, window=None, ti
     ax.set_title(title or ("Output waveforms against the ideal scaled pulse, α = "
                            + ", ".join(f"{f:g}" for f in factors)), fontsize="medium")
     _finish(ax)
-    leg = _legend(ax, loc="upper right") if legend else None
+    leg = _legend(ax, legend, loc="upper right")
     return Drawing(fig, tuple(axes), art, leg, data)
 
 
@@ -592,7 +614,8 @@ def plot_spectra(outcomes, *, ax=None, trial=0, fraction=0.99, floor_db=-60.0, t
     floor_db : float
         Lowest level shown, dB.
     title : str, optional
-    legend : bool
+    legend : bool or "outside"
+        Draw a legend inside the panel, to its right ("outside"), or not.
 
     Returns
     -------
@@ -637,7 +660,7 @@ def plot_spectra(outcomes, *, ax=None, trial=0, fraction=0.99, floor_db=-60.0, t
     ax.set_title(title or f"Spectra of input and outputs (dotted: {100 * fraction:g} % occupied bandwidth)",
                  fontsize="medium")
     _finish(ax)
-    leg = _legend(ax, loc="lower left") if legend else None
+    leg = _legend(ax, legend, loc="lower left")
     return Drawing(fig, (ax,), art, leg, {"bandwidth": bws})
 
 
@@ -712,7 +735,8 @@ def plot_metric(ds, metric="nrmse", over="factor", *, ax=None, methods=None, sel
     target : float, optional
         Draw a horizontal line at this value (SI units of the metric).
     title : str, optional
-    legend : bool
+    legend : bool or "outside"
+        Draw a legend inside the panel, to its right ("outside"), or not.
 
     Returns
     -------
@@ -801,7 +825,7 @@ def plot_metric(ds, metric="nrmse", over="factor", *, ax=None, methods=None, sel
         notes.append(f"line: median of {n_trials} trials")
         if band is not None:
             notes.append(f"band: {100 * band[0]:g}–{100 * band[1]:g} % of trials")
-    leg = _legend(ax, title="\n".join(notes) or None) if legend else None
+    leg = _legend(ax, legend, title="\n".join(notes) or None)
     return Drawing(fig, (ax,), art, leg, data)
 
 
@@ -832,7 +856,8 @@ def plot_tradeoff(ds, cost="area", fidelity="nrmse", *, ax=None, methods=None, s
         Fidelity target drawn as a vertical line (SI units of `fidelity`).
     logx, logy : bool, optional
     title : str, optional
-    legend : bool
+    legend : bool or "outside"
+        Draw a legend inside the panel, to its right ("outside"), or not.
 
     Returns
     -------
@@ -895,13 +920,13 @@ def plot_tradeoff(ds, cost="area", fidelity="nrmse", *, ax=None, methods=None, s
         ax.scatter([], [], color="#999999", alpha=0.35, s=28, label="dominated design")
     ax.set_xlabel(xlabel + ("  → better" if higher else "  ← better"))
     ax.set_ylabel(ylabel + "  ↓ better")
-    ax.set_title(title or f"{sub[cost].attrs.get('long_name', cost).capitalize()} against "
-                 f"{sub[fidelity].attrs.get('long_name', fidelity)}", fontsize="medium")
+    ax.set_title(title or f"{_short_name(sub[cost])} versus {_short_name(sub[fidelity])}",
+                 fontsize="medium")
     _finish(ax)
     note = "one point per design (median over trials)"
     if n_missing:
         note += f"\n{n_missing} design(s) without a value not shown"
-    leg = _legend(ax, title=note) if legend else None
+    leg = _legend(ax, legend, title=note)
     return Drawing(fig, (ax,), art, leg, data)
 
 
@@ -1001,7 +1026,7 @@ def plot_map(ds, metric="nrmse", x="factor", y=None, *, ax=None, methods=None, s
         a.set_xticks(np.arange(len(px)), tx)
         a.set_yticks(np.arange(len(py)), ty)
         a.set_xlabel(xlabel)
-        if a is axs[0] or ax is not None:
+        if a is axs[0]:
             a.set_ylabel(ylabel)
         st = method_style(m)
         a.set_title(m, color=st["color"], fontweight="bold", fontsize="medium")
