@@ -346,6 +346,9 @@ class Suite:
         set_("base_dir", base)
         # pulses: normalise to a tuple of (name, Pulse | spec)
         raw = self.pulses
+        if isinstance(raw, (list, tuple)) and raw and all(
+                isinstance(e, tuple) and len(e) == 2 and isinstance(e[0], str) for e in raw):
+            raw = dict(raw)  # the normalised form below (e.g. from dataclasses.replace)
         if isinstance(raw, Pulse) or (isinstance(raw, Mapping) and ("shape" in raw or "csv" in raw)):
             raw = [raw]
         entries = []

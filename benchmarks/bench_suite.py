@@ -1,0 +1,148 @@
+"""Benchmark: a 10,000-cell suite in-process, on 2 local processes and on a 2-worker Dask
+LocalCluster, with cells/s and speed-up against the in-process run measured in the same run;
+then the runner's own cost per cell.
+
+    python benchmarks/bench_suite.py                 # docs/suites/resample-grid-10k.toml
+    python benchmarks/bench_suite.py --pulses 1      # a quarter of it (2,500 cells)
+
+Runner overhead is measured two ways:
+1. a method that returns at once, registered in code: a whole cell through ``run_suite``
+   against ``run_cell`` called in a bare loop (the cell still computes every metric);
+2. ``run_cell`` replaced by a stub that returns a real, pre-computed row, so what remains is
+   only the runner: cell layout, time limit, checkpoint writing, progress, pickling, assembly.
+"""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+import os
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+import xarray as xr
+
+import timescale as ts
+from timescale import execute
+from timescale.plugin import Bill, Design, Method, Simulation, param
+from timescale.run import run_cell
+from timescale.suite import Suite
+
+ROOT = Path(__file__).resolve().parent.parent
+
+
+@dataclasses.dataclass(frozen=True)
+class _InstantParams:
+    knob: float = param(1.0, doc="a parameter to sweep (unused)")
+
+
+class Instant(Method):
+    """Returns its input at once (ideal factor-1 'scaling'): the runner's per-cell floor."""
+
+    name = "bench-instant"
+    summary = "returns at once (benchmark)"
+    Params = _InstantParams
+
+    def design(self, pulse, factor, params, technology):
+        return Design(factor=factor)
+
+    def simulate(self, pulse, design, params, rng, trials=1, technology=None):
+        return Simulation(pulse=pulse)
+
+    def bill(self, design, params, technology):
+        return Bill(area=0.0, power=0.0, energy_per_pulse=0.0, bw_internal=0.0)
+
+
+def _timed(label, suite, tmp, **kw):
+    ck = Path(tmp) / f"{label}.checkpoint"
+    t0 = time.perf_counter()
+    res = ts.run_suite(suite, checkpoint=ck, progress=False, **kw)
+    dt = time.perf_counter() - t0
+    ck.unlink(missing_ok=True)
+    return res, dt
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--suite", default=str(ROOT / "docs" / "suites" / "resample-grid-10k.toml"))
+    ap.add_argument("--pulses", type=int, default=None, help="keep only the first N pulse widths")
+    ap.add_argument("--overhead-cells", type=int, default=10_000, help="cells for the stubbed-runner run")
+    ap.add_argument("--instant-cells", type=int, default=1000, help="cells for the instant-method run")
+    args = ap.parse_args(argv)
+
+    suite = Suite.from_toml(args.suite)
+    if args.pulses:
+        suite = dataclasses.replace(suite, pulses=[s for _, s in suite.pulses[: args.pulses]])
+    n = suite.n_cells()
+    print(f"suite {suite.name}: {n} cells, {os.cpu_count()} CPUs, Python {sys.version.split()[0]}")
+    with tempfile.TemporaryDirectory() as tmp:
+        serial, t_serial = _timed("serial", suite, tmp)
+        print(f"  in-process        {t_serial:8.1f} s  {n / t_serial:8.1f} cells/s  1.00x")
+        procs, t_procs = _timed("procs", suite, tmp, workers=2)
+        print(f"  2 processes       {t_procs:8.1f} s  {n / t_procs:8.1f} cells/s  {t_serial / t_procs:.2f}x")
+        from dask.distributed import Client, LocalCluster
+
+        with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as cl, \
+                Client(cl) as client:
+            client.run(lambda: __import__("timescale").available_methods())  # warm the workers' imports
+            dask_res, t_dask = _timed("dask", suite, tmp, client=client)
+        print(f"  Dask 2 workers    {t_dask:8.1f} s  {n / t_dask:8.1f} cells/s  {t_serial / t_dask:.2f}x")
+        for label, other in (("2 processes", procs), ("Dask", dask_res)):
+            xr.testing.assert_identical(serial.cube, other.cube)
+        print("  cubes identical (xarray.testing.assert_identical): yes")
+        print(f"  failed cells: {serial.cube.attrs['n_failed']}")
+
+        # what one cell costs inside run_cell: the method vs the metrics
+        serial_spec = suite.plan().cell(0, 1)
+        reps = 200
+        t0 = time.perf_counter()
+        for i in range(reps):
+            run_cell(dataclasses.replace(serial_spec, index=i))
+        t_cell = (time.perf_counter() - t0) / reps
+        print(f"\nrun_cell of one suite cell: {t_cell * 1e3:.2f} ms")
+
+        with ts.registered(Instant()):
+            k = args.instant_cells
+            inst = Suite(pulses=[{"shape": "monocycle", "name": "p", "fwhm": 300e-12,
+                                  "center": 1.5e-9, "duration": 3e-9, "rate": 40e9}],
+                         methods=["bench-instant"], factors=[1.0],
+                         sweep={"knob": list(np.arange(1.0, k + 1.0))}, seed=1)
+            plan = inst.plan()
+            for i in range(20):  # warm up
+                run_cell(plan.cell(i, 1))
+            t0 = time.perf_counter()
+            for i in range(k):
+                run_cell(plan.cell(i, 1))
+            t_bare = (time.perf_counter() - t0) / k
+            _, t_run = _timed("instant", inst, tmp)
+            print(f"instant method: run_cell alone {t_bare * 1e3:.3f} ms/cell (all of it metrics), "
+                  f"through run_suite {t_run / k * 1e3:.3f} ms/cell -> runner adds "
+                  f"{(t_run / k - t_bare) * 1e3:.3f} ms/cell")
+
+            # runner alone: run_cell stubbed to return a real row (same size as a real one)
+            template = run_cell(plan.cell(0, 1))
+            m = args.overhead_cells
+            big = dataclasses.replace(inst, sweep={"knob": list(np.arange(1.0, m + 1.0))})
+
+            def stub(spec):
+                return dataclasses.replace(template, index=spec.index)
+
+            real = execute.run_cell
+            execute.run_cell = stub  # inherited by forked worker processes
+            try:
+                _, t_stub = _timed("stub", big, tmp)
+                _, t_stub_timeout = _timed("stub-t", dataclasses.replace(big, timeout=10.0), tmp)
+                _, t_stub_p = _timed("stub-p", big, tmp, workers=2)
+            finally:
+                execute.run_cell = real
+            print(f"runner alone ({m} cells, run_cell stubbed): in-process {t_stub / m * 1e3:.3f} ms/cell, "
+                  f"with a time limit {t_stub_timeout / m * 1e3:.3f} ms/cell, "
+                  f"2 processes {t_stub_p / m * 1e3:.3f} ms/cell (wall)")
+            print(f"runner cost against a suite cell: {t_stub / m / t_cell * 100:.2f} % of the cell")
+
+
+if __name__ == "__main__":
+    main()
