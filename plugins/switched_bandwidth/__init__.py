@@ -314,7 +314,7 @@ class SwitchedBandwidth(Method):
         # node capacitance from the noise target: var = F·kTγ/C (Lyapunov of the structure)
         gamma = params.noise_gamma or technology.gm_noise_gamma
         T = technology.temperature
-        Qn = gm_c_matrices(A, B, 1.0, 1.0 / (2 * _BOLTZMANN), 0.5)  # Q for kTγ = 1, C = 1
+        Qn = gm_c_matrices(A, B, 1.0, 1.0 / _BOLTZMANN, 1.0)  # Q for kTγ = 1, C = 1
         Pn = lti.stationary_covariance(A, Qn)
         F = float(np.asarray(sysm.C) @ Pn @ np.asarray(sysm.C))
         c_node = max(F * _BOLTZMANN * T * gamma / params.noise_target ** 2, _MIN_NODE_C)
