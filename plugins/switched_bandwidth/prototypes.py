@@ -242,3 +242,34 @@ def build(kind: str, order: int, delay: float, termination: str = "matched") -> 
     if kind == "ladder":
         return ladder(order, delay, termination)
     raise ValueError(f"prototype must be 'bessel', 'pade' or 'ladder', got {kind!r}")
+
+
+def ngspice_netlist(system: StateSpace, node_c: float, t_switch: float, factor: float, *,
+                    ramp: float, source: str, t_stop: float, t_step: float, out_file: str) -> str:
+    """An ngspice netlist of the gm-C realization of `system` with its switch.
+
+    Each state is a node with capacitance `node_c` to ground; each row of A and B becomes one
+    behavioural current source C_node·(Σ A_ij v_j + B_i v_in)·g(t) into its node, where g(t)
+    is a piecewise-linear control voltage that ramps from 1 to 1/α over [t_switch,
+    t_switch + ramp] — so every transconductance, source and load conductance is scaled
+    together. The input is the closed-form behavioural expression `source` (a function of
+    ``time``); the run starts from zero state (``uic``) and writes the node voltages with one
+    time column to `out_file`.
+    """
+    A = np.asarray(system.A)
+    B = np.asarray(system.B)
+    n = A.shape[0]
+    lines = ["* switched gm-C delay filter (generated)",
+             f"Bin in 0 V = {source}",
+             f"Vg g 0 PWL(0 1 {t_switch:.12e} 1 {t_switch + ramp:.12e} {1.0 / factor:.12e})"]
+    for i in range(n):
+        terms = [f"({node_c * A[i, j]:.15e})*V(n{j})" for j in range(n) if A[i, j] != 0]
+        if B[i] != 0:
+            terms.append(f"({node_c * B[i]:.15e})*V(in)")
+        lines.append(f"C{i} n{i} 0 {node_c:.6e} IC=0")
+        lines.append(f"B{i} 0 n{i} I = V(g)*({' + '.join(terms) or '0'})")
+    nodes = " ".join(f"v(n{i})" for i in range(n))
+    lines += [".control", "set wr_singlescale", "set wr_vecnames",
+              f"tran {t_step:.6e} {t_stop:.6e} uic", f"wrdata {out_file} {nodes} v(in)",
+              "quit", ".endc", ".end"]
+    return "\n".join(lines) + "\n"
