@@ -1,7 +1,9 @@
 """Every ```python block in docs/**/*.md runs, and the hook reference matches the hookspecs.
 
 Blocks of one page run in order, in one shared namespace, in a fresh temporary working
-directory. A block opts out only with the marker comment as its first line::
+directory that holds a copy of docs/ (so a path such as ``docs/suites/echo-compare.toml``
+works as it does from the repository root, and nothing a page writes lands in the checkout).
+A block opts out only with the marker comment as its first line::
 
     # docs-test: skip (REASON)
 
@@ -13,6 +15,7 @@ from __future__ import annotations
 
 import inspect
 import re
+import shutil
 import sys
 import types
 import warnings
@@ -63,6 +66,8 @@ def test_skip_marker_needs_a_reason():
 
 @pytest.mark.parametrize("page", _pages(), ids=lambda p: str(p.relative_to(DOCS)))
 def test_page_code_runs(page, tmp_path, monkeypatch):
+    shutil.copytree(DOCS, tmp_path / "docs",
+                    ignore=shutil.ignore_patterns("*.egg-info", "build", "__pycache__", "*.nc"))
     monkeypatch.chdir(tmp_path)
     before = set(registry._code_methods)
     # a real module, so that dataclasses and pickling can find the page's classes
