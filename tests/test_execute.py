@@ -46,7 +46,9 @@ def test_serial_processes_and_dask_give_identical_cubes(noisy):
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=False,
                                   dashboard_address=None) as cluster, distributed.Client(cluster) as client:
         on_dask = run_suite(s, client=client, chunk_size=2, progress=False).cube
+        by_address = run_suite(s, scheduler=cluster.scheduler_address, progress=False).cube
     xr.testing.assert_identical(serial, on_dask)
+    xr.testing.assert_identical(serial, by_address)
     assert serial.attrs["n_failed"] == 0 and serial.sizes["trial"] == 2
 
 
@@ -203,3 +205,17 @@ def test_killed_run_resumes_to_the_identical_cube(tmp_path):
     whole = run_suite(suite, progress=False).cube
     xr.testing.assert_identical(ts.load_cube(out), whole)
     xr.testing.assert_identical(res.cube, whole)
+
+
+def test_kept_waveforms_go_to_a_companion_file(tmp_path, noisy):
+    s = Suite(pulses=[GAUSS], methods=["suite-noisy"], factors=[0.5, 2.0], trials=2, keep="waveforms", seed=2)
+    out = tmp_path / "w.nc"
+    res = run_suite(s, output=out, progress=False)
+    wf = ts.load_cube(tmp_path / "w.waveforms.nc")
+    xr.testing.assert_identical(wf, res.waveforms)
+    xr.testing.assert_identical(wf, run_suite(s, workers=2, progress=False).waveforms)
+    # the kept record is the method's output: x(t/α) on a grid of rate/α (plus the cell's noise)
+    one = wf["value"].sel({"method": "suite-noisy", "pulse": "g", "factor": 2.0}).values
+    t = wf["time"].sel({"method": "suite-noisy", "pulse": "g", "factor": 2.0}).values
+    assert one.shape == (2, 50) and np.allclose(np.diff(t), 2.0 / 50e9)
+    assert not np.array_equal(one[0], one[1])

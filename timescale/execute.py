@@ -18,7 +18,9 @@ Dask (``scheduler="tcp://HOST:PORT"`` or ``client=Client(...)``)
     Dask is imported only here (``pip install "timescale[dask]"``). The plan is scattered once
     to every worker; tasks are chunks of indices submitted with ``pure=False``. Methods travel
     by name: the workers need the same plugins installed. A method registered in code travels
-    as a pickled object.
+    as a pickled object. Prefer process workers with one thread each: Python's warning
+    filters are process-wide, so cells that warn on threads of one process can see each
+    other's warnings (the status "warned" could land on the wrong cell).
 
 Checkpoint and resume
 ---------------------
@@ -222,7 +224,7 @@ def _iter_dask(plan, entropy, pending, client, chunk):
     futs = [client.submit(_dask_chunk, payload, pending[k:k + chunk], pure=False)
             for k in range(0, len(pending), chunk)]
     try:
-        for f in dd.as_completed(futs):
+        for f in dd.as_completed(futs, loop=client.loop):  # the client may not be the default one
             yield f.result()
             f.release()
     finally:
