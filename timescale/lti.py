@@ -552,6 +552,10 @@ class _Lifted:
 # ------------------------------------------------------------------------------------------
 # public simulation functions
 # ------------------------------------------------------------------------------------------
+def _key(system: StateSpace):
+    return tuple(np.ascontiguousarray(a).tobytes() for a in (system.A, system.B, system.C, system.D))
+
+
 def _prepare(schedule, u, x0):
     if not isinstance(schedule, Schedule):
         if isinstance(schedule, StateSpace):
@@ -622,9 +626,10 @@ def simulate(schedule, u, dt: float, *, x0=None, block: int = 64, return_state: 
     for piece in plan.pieces:
         if piece[0] == "stretch":
             _, a, b, m = piece
-            if m not in lifted:
-                lifted[m] = _Lifted(schedule.systems[m], dt, block)
-            lf = lifted[m]
+            key = _key(schedule.systems[m])  # equal systems share one lifted form
+            if key not in lifted:
+                lifted[key] = _Lifted(schedule.systems[m], dt, block)
+            lf = lifted[key]
             ya, z = lf.run(x, u2[:, a:b])
             y[:, a:b] = ya
             if b < N:
