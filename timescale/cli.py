@@ -2,6 +2,8 @@
 
 ``timescale methods``   list the available methods and their parameters
 ``timescale demo``      run the invented demo scenario through every method
+``timescale report``    write the comparison report (HTML page and figures) for a cube
+``timescale plot``      draw one figure from a cube
 ``timescale run``       run a suite file into a results cube
 ``timescale show``      describe a results cube: dims, metrics, per-method summary
 """
@@ -125,6 +127,71 @@ def _cmd_show(args) -> int:
     return 0
 
 
+def _cmd_report(args) -> int:
+    from .cube import load_cube
+    from .report import DEFAULT_TARGET, write_report
+
+    ds = load_cube(args.cube)
+    target = args.target
+    if target is None:
+        if args.fidelity != "nrmse":
+            raise ValueError(f"--target is needed with --fidelity {args.fidelity} (in its SI unit)")
+        target = DEFAULT_TARGET
+    page = write_report(ds, args.output, title=args.title, target=target, fidelity=args.fidelity)
+    print(f"report written to {page}")
+    return 0
+
+
+def _parse_select(items) -> dict:
+    out = {}
+    for item in items:
+        if "=" not in item:
+            raise ValueError(f"--select {item!r} must look like DIM=VALUE, e.g. pulse=gaussian")
+        dim, value = item.split("=", 1)
+        try:
+            out[dim.strip()] = float(value)
+        except ValueError:
+            out[dim.strip()] = value.strip()
+    return out
+
+
+def _cmd_plot(args) -> int:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from . import plot
+    from .cube import load_cube
+
+    ds = load_cube(args.cube)
+    sel = _parse_select(args.select) or None
+    if args.kind == "metric":
+        d = plot.plot_metric(ds, args.metric, args.over, select=sel, methods=args.method,
+                             others=args.others, target=args.target)
+    elif args.kind == "tradeoff":
+        d = plot.plot_tradeoff(ds, args.cost, args.fidelity, select=sel, methods=args.method,
+                               target=args.target)
+    elif args.kind == "map":
+        d = plot.plot_map(ds, args.metric, args.x, args.y, select=sel, methods=args.method)
+    else:
+        from .report import _rerun
+
+        outcomes, notes, _, _ = _rerun(ds, None, "nrmse", pulse=args.pulse, factor=args.factor)
+        if args.method:
+            outcomes = {k: v for k, v in outcomes.items() if k in args.method}
+        if not outcomes:
+            raise ValueError("nothing to draw: " + (" ".join(notes) or "no method could be re-run"))
+        for n in notes:
+            print(f"note: {n}", file=sys.stderr)
+        d = (plot.plot_waveforms if args.kind == "waveforms" else plot.plot_spectra)(outcomes)
+    out = Path(args.output)
+    d.figure.savefig(out, dpi=args.dpi)
+    import matplotlib.pyplot as plt
+
+    plt.close(d.figure)
+    print(f"figure written to {out}")
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser (exposed for documentation and tests)."""
     p = argparse.ArgumentParser(prog="timescale", description="Compare analog pulse time-scaling methods.")
@@ -134,6 +201,7 @@ def build_parser() -> argparse.ArgumentParser:
     s = sub.add_parser("demo", help="run the invented demo scenario through every method")
     s.add_argument("-o", "--output", default="timescale-demo.nc", help="cube file to write (NetCDF)")
     s.add_argument("--seed", type=int, default=2026, help="root random seed")
+    s.add_argument("--report", default=None, metavar="DIR", help="also write the comparison report into DIR")
     s.set_defaults(func=_cmd_demo)
     s = sub.add_parser("run", help="run a suite file (TOML) into a results cube")
     s.add_argument("suite", help="suite file (TOML)")
@@ -150,6 +218,38 @@ def build_parser() -> argparse.ArgumentParser:
     s = sub.add_parser("show", help="describe a results cube: dims, metrics, per-method summary")
     s.add_argument("cube", help="cube file (NetCDF)")
     s.set_defaults(func=_cmd_show)
+    s = sub.add_parser("report", help="write the comparison report (HTML page and figures) for a results cube")
+    s.add_argument("cube", help="cube file (NetCDF)")
+    s.add_argument("-o", "--output", required=True, metavar="DIR", help="folder to write the report into")
+    s.add_argument("--title", default=None, help="page title")
+    s.add_argument("--fidelity", default="nrmse", help="metric judged against the target (default nrmse)")
+    s.add_argument("--target", type=float, default=None,
+                   help="fidelity target in the metric's SI unit (default: NRMSE 0.1)")
+    s.set_defaults(func=_cmd_report)
+    s = sub.add_parser("plot", help="draw one figure from a results cube")
+    s.add_argument("cube", help="cube file (NetCDF)")
+    s.add_argument("kind", choices=("metric", "tradeoff", "map", "waveforms", "spectra"),
+                   help="metric: a metric against a swept dim; tradeoff: cost against fidelity; "
+                        "map: heat maps over two swept dims; waveforms / spectra: re-run one cell "
+                        "(needs the input pulses: demo cubes only)")
+    s.add_argument("-o", "--output", required=True, metavar="FILE", help="image file (.png, .svg, .pdf)")
+    s.add_argument("--metric", default="nrmse", help="metric to draw (metric, map)")
+    s.add_argument("--over", default="factor", help="dimension on the horizontal axis (metric)")
+    s.add_argument("--cost", default="area", help="cost metric (tradeoff)")
+    s.add_argument("--fidelity", default="nrmse", help="fidelity metric (tradeoff)")
+    s.add_argument("--x", default="factor", help="horizontal dimension (map)")
+    s.add_argument("--y", default=None, help="vertical dimension (map)")
+    s.add_argument("--others", default="median", choices=("median", "best", "worst"),
+                   help="how dims not on the axis are reduced (metric)")
+    s.add_argument("--target", type=float, default=None, help="draw a target line (SI units)")
+    s.add_argument("--select", action="append", default=[], metavar="DIM=VALUE",
+                   help="fix a dimension, e.g. --select pulse=gaussian (repeatable)")
+    s.add_argument("--method", action="append", default=None, metavar="NAME",
+                   help="draw only this method (repeatable)")
+    s.add_argument("--pulse", default=None, help="pulse to re-run (waveforms, spectra)")
+    s.add_argument("--factor", type=float, default=None, help="factor to re-run (waveforms, spectra)")
+    s.add_argument("--dpi", type=int, default=150, help="resolution of raster images")
+    s.set_defaults(func=_cmd_plot)
     return p
 
 

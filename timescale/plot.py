@@ -654,6 +654,9 @@ def plot_spectra(outcomes, *, ax=None, trial=0, fraction=0.99, floor_db=-60.0, t
         f_lo, f_hi = min(f_lo, bw), max(f_hi, bw)
     ax.set_xscale("log")
     ax.set_xlim(f_lo / 30 * k_f, f_hi * 4 * k_f)
+    from matplotlib.ticker import FuncFormatter
+
+    ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))  # 0.1, 1, 10 GHz
     ax.set_ylim(floor_db, 5)
     ax.set_xlabel(f"frequency ({unit_f})")
     ax.set_ylabel("magnitude relative to own peak (dB)")
@@ -703,8 +706,8 @@ def _reduce_others(arr, how, higher):
 
 @_strict
 def plot_metric(ds, metric="nrmse", over="factor", *, ax=None, methods=None, select=None,
-                others="median", band=(0.1, 0.9), logx=None, logy=None, target=None, title=None,
-                legend=True):
+                others="median", band=(0.1, 0.9), logx=None, logy=None, target=None, floor=None,
+                title=None, legend=True):
     """A metric against one swept dimension, one line per method, with a spread band over trials.
 
     Every dimension other than `over` and ``trial`` (pulses, other swept settings) is first
@@ -734,6 +737,9 @@ def plot_metric(ds, metric="nrmse", over="factor", *, ax=None, methods=None, sel
         Log axes (default: when the values span a factor of 20 or more).
     target : float, optional
         Draw a horizontal line at this value (SI units of the metric).
+    floor : float, optional
+        Draw values below this (SI) at it, marked ▽, so that results exact to rounding
+        (NRMSE 1e-14) do not squeeze the rest of a log axis.
     title : str, optional
     legend : bool or "outside"
         Draw a legend inside the panel, to its right ("outside"), or not.
@@ -741,7 +747,7 @@ def plot_metric(ds, metric="nrmse", over="factor", *, ax=None, methods=None, sel
     Returns
     -------
     Drawing
-        ``artists[method]``: its median line; ``"band:<method>"``: its band;
+        ``artists[method]``: its median line; ``"floor:<method>"``: markers of floored values; ``"band:<method>"``: its band;
         ``"failed:<method>"``: failed-cell markers; ``data[method]``: (positions, median, lo, hi)
         in SI.
     """
@@ -771,7 +777,10 @@ def plot_metric(ds, metric="nrmse", over="factor", *, ax=None, methods=None, sel
     allvals = []
     any_failed = False
     n_trials = sub.sizes.get("trial", 1) if "trial" in da.dims else 1
-    for m in meths:
+    if floor is not None and not (isinstance(floor, (int, float)) and floor > 0):
+        raise ValueError(f"floor must be a number > 0 or None, got {floor!r}")
+    any_floored = False
+    for i_m, m in enumerate(meths):
         dm = da.sel({"method": m})
         keep = [over] + (["trial"] if "trial" in dm.dims else [])
         arr, other_dims = _reduced(dm, keep)  # (n_over[, n_trial], k_other)
@@ -779,11 +788,24 @@ def plot_metric(ds, metric="nrmse", over="factor", *, ax=None, methods=None, sel
         if per_trial.ndim == 1:
             per_trial = per_trial[:, None]
         med = _nanmedian(per_trial)
+        shown = med
+        if floor is not None:
+            floored = np.isfinite(med) & (med < floor)
+            per_trial = np.where(per_trial < floor, floor, per_trial)
+            shown = np.where(floored, floor, med)
         allvals.append(per_trial * k)
         st = method_style(m)
-        line = ax.plot(pos, med * k, color=st["color"], marker=st["marker"], linestyle=st["linestyle"],
-                       linewidth=1.6, markersize=6, label=m, zorder=3)
+        # earlier methods drawn wider so an identical later line leaves them visible
+        line = ax.plot(pos, shown * k, color=st["color"], marker=st["marker"], linestyle=st["linestyle"],
+                       linewidth=max(1.0, 2.4 - 0.45 * i_m), markersize=max(3.5, 7.5 - 1.3 * i_m),
+                       label=m, zorder=3 + 0.1 * i_m)
         art[m] = tuple(line)
+        if floor is not None and np.any(floored):
+            any_floored = True
+            art[f"floor:{m}"] = tuple(ax.plot(pos[floored], np.full(int(floored.sum()), floor * k),
+                                              linestyle="none", marker="v", markersize=11,
+                                              markerfacecolor="none", markeredgecolor=st["color"],
+                                              markeredgewidth=1.4, zorder=4))
         lo = hi = None
         if band is not None and per_trial.shape[-1] > 1:
             lo, hi = _nanquantile(per_trial, band[0]), _nanquantile(per_trial, band[1])
@@ -800,7 +822,8 @@ def plot_metric(ds, metric="nrmse", over="factor", *, ax=None, methods=None, sel
             art[f"failed:{m}"] = tuple(fx)
         data[m] = (pos, med, lo, hi)
     if logy is None:
-        logy = _auto_log(np.concatenate([a.ravel() for a in allvals]) if allvals else [])
+        span = [a.ravel() for a in allvals] + [np.atleast_1d(v * k) for v in (target, floor) if v is not None]
+        logy = _auto_log(np.concatenate(span) if span else [])
     if logx:
         ax.set_xscale("log")
     if logy:
@@ -814,6 +837,9 @@ def plot_metric(ds, metric="nrmse", over="factor", *, ax=None, methods=None, sel
     if any_failed:
         ax.plot([], [], linestyle="none", marker="x", color="#555555", markeredgewidth=2,
                 label="failed cell (on lower edge)")
+    if any_floored:
+        ax.plot([], [], linestyle="none", marker="v", markerfacecolor="none", markeredgecolor="#555555",
+                markersize=9, label=f"below {floor * k:g}, drawn at it")
     ax.set_xlabel(xlabel)
     ax.set_ylabel(ylabel)
     ax.set_title(title or f"{_short_name(da)} versus {_coord_name(sub, over)}", fontsize="medium")
@@ -834,7 +860,7 @@ def plot_metric(ds, metric="nrmse", over="factor", *, ax=None, methods=None, sel
 
 @_strict
 def plot_tradeoff(ds, cost="area", fidelity="nrmse", *, ax=None, methods=None, select=None,
-                  target=None, logx=None, logy=None, title=None, legend=True):
+                  target=None, floor=None, logx=None, logy=None, title=None, legend=True):
     """Cost against fidelity: one point per design (cell, median over trials), with each
     method's non-dominated front drawn as a staircase.
 
@@ -854,6 +880,8 @@ def plot_tradeoff(ds, cost="area", fidelity="nrmse", *, ax=None, methods=None, s
     select : Mapping[str, Any], optional
     target : float, optional
         Fidelity target drawn as a vertical line (SI units of `fidelity`).
+    floor : float, optional
+        Draw fidelity values below this (SI) at it (the front is found on the true values).
     logx, logy : bool, optional
     title : str, optional
     legend : bool or "outside"
@@ -879,6 +907,9 @@ def plot_tradeoff(ds, cost="area", fidelity="nrmse", *, ax=None, methods=None, s
     data: dict[str, Any] = {}
     xs_all, ys_all = [], []
     n_missing = 0
+    n_floored = 0
+    if floor is not None and not (isinstance(floor, (int, float)) and floor > 0):
+        raise ValueError(f"floor must be a number > 0 or None, got {floor!r}")
     for m in meths:
         keep = [d for d in sub["status"].dims if d != "method"] if "status" in sub else \
             [d for d in sub[fidelity].dims if d not in ("method", "trial")]
@@ -893,14 +924,19 @@ def plot_tradeoff(ds, cost="area", fidelity="nrmse", *, ax=None, methods=None, s
         if not fx.size:
             continue
         front = pareto_mask(cy, -fx if higher else fx)
+        fx_true = fx
+        if floor is not None:
+            n_floored += int(np.sum(fx < floor))
+            fx = np.maximum(fx, floor)
         pts = ax.scatter(fx * kx, cy * ky, color=st["color"], marker=st["marker"], s=28, alpha=0.35,
                          linewidths=0, zorder=2)
         on = ax.scatter(fx[front] * kx, cy[front] * ky, color=st["color"], marker=st["marker"], s=46,
                         edgecolors="black", linewidths=0.6, zorder=4, label=m)
-        order = np.argsort(fx[front] * (-1 if higher else 1))
-        fpts = np.column_stack([fx[front][order], cy[front][order]])
+        order = np.argsort(fx_true[front] * (-1 if higher else 1))
+        fpts = np.column_stack([fx_true[front][order], cy[front][order]])
         data[f"front:{m}"] = fpts
-        line = ax.plot(fpts[:, 0] * kx, fpts[:, 1] * ky, color=st["color"], linestyle=st["linestyle"],
+        drawn = np.maximum(fpts[:, 0], floor) if floor is not None else fpts[:, 0]
+        line = ax.plot(drawn * kx, fpts[:, 1] * ky, color=st["color"], linestyle=st["linestyle"],
                        drawstyle="steps-post", linewidth=1.4, zorder=3)
         art[m] = (pts, on)
         art[f"front:{m}"] = tuple(line)
@@ -926,6 +962,8 @@ def plot_tradeoff(ds, cost="area", fidelity="nrmse", *, ax=None, methods=None, s
     note = "one point per design (median over trials)"
     if n_missing:
         note += f"\n{n_missing} design(s) without a value not shown"
+    if n_floored:
+        note += f"\n{n_floored} design(s) below {floor * kx:g} drawn at it"
     leg = _legend(ax, legend, title=note)
     return Drawing(fig, (ax,), art, leg, data)
 

@@ -164,6 +164,9 @@ class Finding:
     n_cells, n_failed, n_warned : int
     text : str
         The finding in plain words.
+    per_pulse : dict
+        pulse -> factor -> ("meets", area m², power W) | ("misses", best value) |
+        ("failed", reason).
     """
 
     method: str
@@ -175,6 +178,7 @@ class Finding:
     n_failed: int = 0
     n_warned: int = 0
     text: str = ""
+    per_pulse: dict = field(default_factory=dict)
 
 
 def _factor_span(served, tested):
@@ -192,8 +196,8 @@ def _range_text(values, units):
         return "—"
     lo, hi = min(v), max(v)
     if math.isclose(lo, hi, rel_tol=0.02):
-        return format_value(lo, units, 2)
-    return f"{format_value(lo, units, 2, unit=False)}–{format_value(hi, units, 2)}"
+        return format_value(lo, units, 3)
+    return f"{format_value(lo, units, 3, unit=False)}–{format_value(hi, units, 3)}"
 
 
 def findings(ds: xr.Dataset, *, target: float = DEFAULT_TARGET, fidelity: str = "nrmse"):
@@ -225,69 +229,88 @@ def findings(ds: xr.Dataset, *, target: float = DEFAULT_TARGET, fidelity: str = 
     dims = _cell_dims(ds)
     settings = [d for d in dims if d not in ("pulse", "factor")]
     tested = tuple(float(f) for f in ds["factor"].values)
-    unit_name = ds[fidelity].attrs.get("long_name", fidelity)
-    short = fidelity.upper() if fidelity == "nrmse" else unit_name
+    funits = ds[fidelity].attrs.get("units", "")
+    short = "NRMSE" if fidelity == "nrmse" else ds[fidelity].attrs.get("long_name", fidelity)
     cmp = "≥" if higher else "≤"
-    tgt = format_value(target, ds[fidelity].attrs.get("units", ""), 3)
+    tgt = format_value(target, funits, 3)
+    pulses = [str(p) for p in ds["pulse"].values]
     out = []
     for m in (str(v) for v in ds["method"].values):
         sub = ds.sel({"method": m})
         fid = _median_trials(sub[fidelity])
         area = _median_trials(sub["area"]) if "area" in sub else None
         power = _median_trials(sub["power"]) if "power" in sub else None
-        served, cheapest, missed = [], {}, {}
+        # per pulse and factor: ("meets", area, power) | ("misses", best) | ("failed", reason)
+        verdict: dict[str, dict[float, tuple]] = {p: {} for p in pulses}
         for f in ds["factor"].values:
-            ok_all, worst_area, worst_power, best_miss = True, -np.inf, -np.inf, []
-            for p in ds["pulse"].values:
+            for p in pulses:
                 cell = {"factor": f, "pulse": p}
                 fv = np.asarray(fid.sel(cell).transpose(*settings).values, dtype=float).ravel()
                 ok = _passes(fv, target, higher)
-                if not np.any(ok):
-                    ok_all = False
-                    if np.any(np.isfinite(fv)):
-                        best_miss.append(np.nanmax(fv) if higher else np.nanmin(fv))
-                    continue
-                av = (np.asarray(area.sel(cell).transpose(*settings).values, dtype=float).ravel()
-                      if area is not None else np.zeros_like(fv))
-                pv = (np.asarray(power.sel(cell).transpose(*settings).values, dtype=float).ravel()
-                      if power is not None else np.zeros_like(fv))
-                cand = np.flatnonzero(ok)
-                j = cand[np.lexsort((pv[cand], av[cand]))[0]]
-                worst_area, worst_power = max(worst_area, av[j]), max(worst_power, pv[j])
-            if ok_all:
-                served.append(float(f))
-                cheapest[float(f)] = {"area": worst_area, "power": worst_power}
-            else:
-                missed[float(f)] = (max(best_miss) if higher else max(best_miss)) if best_miss else math.nan
+                if np.any(ok):
+                    av = (np.asarray(area.sel(cell).transpose(*settings).values, dtype=float).ravel()
+                          if area is not None else np.zeros_like(fv))
+                    pv = (np.asarray(power.sel(cell).transpose(*settings).values, dtype=float).ravel()
+                          if power is not None else np.zeros_like(fv))
+                    cand = np.flatnonzero(ok)
+                    j = cand[np.lexsort((pv[cand], av[cand]))[0]]
+                    verdict[p][float(f)] = ("meets", float(av[j]), float(pv[j]))
+                elif np.any(np.isfinite(fv)):
+                    verdict[p][float(f)] = ("misses", float(np.nanmax(fv) if higher else np.nanmin(fv)))
+                else:
+                    msgs = np.asarray(sub["message"].sel(cell).values).astype(str).ravel()
+                    verdict[p][float(f)] = ("failed", str(msgs[0]) if msgs.size else "")
+        served = [f for f in tested if all(verdict[p][f][0] == "meets" for p in pulses)]
+        cheapest = {f: {"area": max(verdict[p][f][1] for p in pulses),
+                        "power": max(verdict[p][f][2] for p in pulses)} for f in served}
+        missed = {}
+        for f in tested:
+            if f in served:
+                continue
+            bad = [verdict[p][f] for p in pulses if verdict[p][f][0] != "meets"]
+            vals = [v[1] for v in bad if v[0] == "misses"]
+            missed[f] = (max(vals) if not higher else min(vals)) if vals else math.nan
         st = np.asarray(sub["status"].values).astype(str).ravel()
         n_cells, n_failed, n_warned = st.size, int(np.sum(st == "failed")), int(np.sum(st == "warned"))
-        # the sentence a designer reads
-        n_p = ds.sizes["pulse"]
-        pulses_txt = "the input pulse" if n_p == 1 else ("both input pulses" if n_p == 2 else f"all {n_p} input pulses")
+        n_p = len(pulses)
+        every = "the input pulse" if n_p == 1 else ("both input pulses" if n_p == 2 else f"all {n_p} input pulses")
+        setting_txt = (" with a suitable setting of " + ", ".join(settings)) if settings else ""
         if served:
             text = (f"Meets {short} {cmp} {tgt} at {_factor_span(served, list(tested))} "
-                    f"({len(served)} of {len(tested)} factors tested) for {pulses_txt}"
-                    + (", with a suitable setting of " + ", ".join(settings) if settings else "") + ". ")
-            text += (f"The cheapest qualifying design needs "
-                     f"{_range_text([c['area'] for c in cheapest.values()], 'm2')} of silicon and "
-                     f"{_range_text([c['power'] for c in cheapest.values()], 'W')}"
-                     + (" across these factors." if len(served) > 1 else "."))
+                    f"({len(served)} of {len(tested)} factors tested) for {every}{setting_txt}. "
+                    f"The cheapest qualifying design needs "
+                    f"{_range_text([c['area'] for c in cheapest.values()], 'm2')} of silicon and "
+                    f"{_range_text([c['power'] for c in cheapest.values()], 'W')}"
+                    + (" across these factors." if len(served) > 1 else "."))
         else:
-            text = f"Does not meet {short} {cmp} {tgt} at any factor tested for {pulses_txt}."
-        if missed:
+            text = f"Meets {short} {cmp} {tgt} for {every} at none of the factors tested."
+        # what works first, then what does not
+        order = sorted(pulses, key=lambda q: -sum(verdict[q][f][0] == "meets" for f in tested))
+        for p in order:
+            mine = [f for f in tested if verdict[p][f][0] == "meets"]
+            if n_p > 1 and served and mine == served:
+                continue
+            failed_f = [f for f in tested if verdict[p][f][0] == "failed"]
+            missed_f = [f for f in tested if verdict[p][f][0] == "misses"]
             parts = []
-            for f, b in missed.items():
-                parts.append(f"α = {_fmt_factor(f)} (best {format_value(b, ds[fidelity].attrs.get('units', ''), 2)})"
-                             if np.isfinite(b) else f"α = {_fmt_factor(f)} (all runs failed)")
-            if served:
-                text += " Misses the target at " + ", ".join(parts) + "."
-            else:
-                text += " Best reached: " + ", ".join(parts) + "."
-        if n_failed:
-            text += f" {n_failed} of {n_cells} runs failed (see the table)."
+            if mine and mine != served:
+                parts.append(f"meets it at {_factor_span(mine, list(tested))}")
+            if missed_f:
+                parts.append("misses it at " + ", ".join(
+                    f"α = {_fmt_factor(f)} (best {format_value(verdict[p][f][1], funits, 2)})" for f in missed_f))
+            if failed_f:
+                reason = verdict[p][failed_f[0]][1]
+                reason = reason.split(" (at ")[0]
+                if len(reason) > 260:
+                    reason = reason[:257] + "…"
+                what = "every run failed" if len(failed_f) == len(tested) else \
+                    "runs failed at " + ", ".join(f"α = {_fmt_factor(f)}" for f in failed_f)
+                parts.append(f"{what} ({reason})")
+            text += f" For {p}: " + "; ".join(parts) + "."
         if n_warned:
             text += f" {n_warned} of {n_cells} runs raised design warnings."
-        out.append(Finding(m, tuple(served), tested, cheapest, missed, n_cells, n_failed, n_warned, text))
+        out.append(Finding(m, tuple(served), tested, cheapest, missed, n_cells, n_failed, n_warned, text,
+                           verdict))
     return out
 
 
@@ -310,19 +333,23 @@ def _recover_pulses(ds, pulses):
 
 
 def _representative(ds, fidelity):
-    """Pulse and factor shown in the waveform figures: the first pulse and the largest stretch
-    factor (> 1) at which every method has a result; else the largest factor."""
-    p = str(ds["pulse"].values[0])
-    fid = _median_trials(ds[fidelity]).sel({"pulse": p})
+    """Pulse and factor shown in the waveform figures: the first pulse with a stretch factor
+    (> 1) at which every method has a result, and the largest such factor; else the first pulse
+    and the largest factor."""
+    fid = _median_trials(ds[fidelity])
     factors = [float(f) for f in ds["factor"].values]
-    ok = [f for f in factors if f > 1 and all(
-        np.any(np.isfinite(np.asarray(fid.sel({"method": m, "factor": f}).values, dtype=float)))
-        for m in ds["method"].values)]
-    return p, (max(ok) if ok else max(factors))
+    for p in (str(v) for v in ds["pulse"].values):
+        ok = [f for f in factors if f > 1 and all(
+            np.any(np.isfinite(np.asarray(fid.sel({"method": m, "pulse": p, "factor": f}).values, dtype=float)))
+            for m in ds["method"].values)]
+        if ok:
+            return p, max(ok)
+    return str(ds["pulse"].values[0]), max(factors)
 
 
-def _rerun(ds, pulses, fidelity):
-    """Outcomes for the representative cell of each method; returns (outcomes, notes)."""
+def _rerun(ds, pulses, fidelity, pulse=None, factor=None):
+    """Outcomes for the representative cell of each method (or the given pulse and factor);
+    returns (outcomes, notes, pulse name, factor)."""
     from .registry import available_methods
     from .run import stretch
     from .technology import DEFAULT_TECHNOLOGY, Technology
@@ -330,7 +357,16 @@ def _rerun(ds, pulses, fidelity):
     pmap, note = _recover_pulses(ds, pulses)
     if pmap is None:
         return {}, [note], None, None
-    pname, factor = _representative(ds, fidelity)
+    rep_p, rep_f = _representative(ds, fidelity)
+    pname = rep_p if pulse is None else str(pulse)
+    factor = rep_f if factor is None else float(factor)
+    if pname not in [str(p) for p in ds["pulse"].values]:
+        raise ValueError(f"pulse {pname!r} is not in the cube; valid: "
+                         f"{', '.join(str(p) for p in ds['pulse'].values)}")
+    if not np.any(np.isclose(ds["factor"].values.astype(float), factor)):
+        raise ValueError(f"factor {factor:g} is not in the cube; valid: "
+                         f"{', '.join(_fmt_factor(f) for f in ds['factor'].values)}")
+    factor = float(ds["factor"].values[np.argmin(np.abs(ds["factor"].values.astype(float) - factor))])
     try:
         tech = Technology.from_dict(json.loads(ds.attrs["technology"]))
     except (KeyError, ValueError, TypeError):
@@ -410,10 +446,12 @@ def _build_figures(ds, *, target, fidelity, outcomes, pname, factor):
     other_note = (f" Where several settings of {', '.join(settings)} were tried, each point is the "
                   f"best of them." if settings else "")
     over_name = plot._coord_name(ds, over)
+    # results exact to rounding (NRMSE ~1e-14) would squeeze a log axis: draw them at a floor
+    floor = target * 1e-4 if fidelity not in _HIGHER_IS_BETTER and target > 0 else None
 
     def fid_panel(a, p, legend):
         plot.plot_metric(ds, fidelity, over, ax=a, select={"pulse": p}, others=others, target=target,
-                         title=f"{plot._short_name(ds[fidelity])}, {p}", legend=legend)
+                         floor=floor, title=f"{plot._short_name(ds[fidelity])}, {p}", legend=legend)
 
     figs.append(("fidelity", f"Fidelity against {over_name}",
                  f"How closely each method's output matches the ideal scaled pulse at each "
@@ -441,7 +479,7 @@ def _build_figures(ds, *, target, fidelity, outcomes, pname, factor):
         fig = _figure((4.8 * len(costs) + 2.6, 4.1))
         axs = fig.subplots(1, len(costs), squeeze=False)[0]
         for i, (a, c) in enumerate(zip(axs, costs)):
-            plot.plot_tradeoff(ds, c, fidelity, ax=a, target=target,
+            plot.plot_tradeoff(ds, c, fidelity, ax=a, target=target, floor=floor,
                                legend="outside" if i == len(costs) - 1 else False)
         figs.append(("tradeoff", "Cost against fidelity",
                      "One point per design (pulse, factor and settings). Outlined points with the "
@@ -556,12 +594,19 @@ def _verdict_table(ds, finds, fidelity, target):
         for f in tested:
             if f in fd.cheapest:
                 c = fd.cheapest[f]
-                cells += (f'<td class="ok">meets<br><span class="note">{_esc(format_value(c["area"], "m2", 2))}, '
-                          f'{_esc(format_value(c["power"], "W", 2))}</span></td>')
+                cells += (f'<td class="ok">meets<br><span class="note">{_esc(format_value(c["area"], "m2", 3))}, '
+                          f'{_esc(format_value(c["power"], "W", 3))}</span></td>')
             else:
-                b = fd.best_missed.get(f, math.nan)
-                txt = f"best {format_value(b, ds[fidelity].attrs.get('units', ''), 2)}" if np.isfinite(b) else "all runs failed"
-                cells += f'<td class="miss">misses<br><span class="note">{_esc(txt)}</span></td>'
+                notes = []
+                for p, per in fd.per_pulse.items():
+                    kind = per[f]
+                    pre = f"{p}: " if len(fd.per_pulse) > 1 else ""
+                    if kind[0] == "misses":
+                        notes.append(f"{pre}best {format_value(kind[1], ds[fidelity].attrs.get('units', ''), 2)}")
+                    elif kind[0] == "failed":
+                        notes.append(f"{pre}failed")
+                cells += (f'<td class="miss">misses<br><span class="note">'
+                          f'{"<br>".join(_esc(n) for n in notes)}</span></td>')
         rows += f'<tr><th class="l">{_swatch(fd.method)}{_esc(fd.method)}</th>{cells}</tr>'
     return f'<table><tr><th class="l">method</th>{head}</tr>{rows}</table>'
 
