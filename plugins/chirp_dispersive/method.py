@@ -379,6 +379,14 @@ class ChirpDispersive(Method):
             f_c = measured["center"]
         else:
             f_c = params.baseband_ratio * internal * (1 + params.band_margin)
+        if measured is not None:
+            m_lo, m_hi = measured["band"]
+            half = 0.5 * internal * (1 + params.band_margin)
+            if f_c - half < m_lo or f_c + half > m_hi:
+                raise ValueError(
+                    f"the measured line passes {m_lo / 1e9:.4g}-{m_hi / 1e9:.4g} GHz but the design needs "
+                    f"{(f_c - half) / 1e9:.4g}-{(f_c + half) / 1e9:.4g} GHz: the delay-bandwidth product "
+                    f"asked for is beyond this line")
         if f_c < internal / 2:
             raise ValueError(
                 f"carrier {f_c / 1e9:.4g} GHz is below half the internal band {internal / 1e9:.4g} GHz: "
@@ -388,12 +396,6 @@ class ChirpDispersive(Method):
         half1 = b * (1 + params.band_margin)
         band1 = (f_c - half1, f_c + half1)
         if measured is not None:
-            m_lo, m_hi = measured["band"]
-            if band2[0] < m_lo or band2[1] > m_hi:
-                raise ValueError(
-                    f"the measured line passes {m_lo / 1e9:.4g}-{m_hi / 1e9:.4g} GHz but the design needs "
-                    f"{band2[0] / 1e9:.4g}-{band2[1] / 1e9:.4g} GHz: the delay-bandwidth product "
-                    f"asked for is beyond this line")
             l2 = _Line(measured["line"], measured["delay"], measured["max_delay"],
                        abs(phi2) * 2 * math.pi * (band2[1] - band2[0]) ** 2, measured["ripple"], (), band2)
         else:

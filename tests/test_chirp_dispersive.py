@@ -1,0 +1,164 @@
+"""Checks of the chirp-dispersive method (plugin) against published results and the contract."""
+
+import math
+import os
+import warnings
+
+import numpy as np
+import pytest
+
+import timescale
+from timescale import dispersion as dsp
+from timescale import metrics
+from timescale.errors import DesignWarning
+from timescale.pulse import Pulse
+from timescale.testing import check_method
+from timescale_builtins.chirp_dispersive import ChirpDispersive
+
+PS2 = 1e-24
+METHOD = ChirpDispersive()
+
+
+def uwb_pulse():
+    """Invented scenario: a Gaussian monocycle of σ = 50 ps (UWB-like, ~9 GHz 99.9 % band) in a
+    3 ns record at 100 GS/s."""
+    return Pulse.monocycle(sigma=50e-12, center=1e-9, duration=3e-9, rate=100e9, name="invented-uwb")
+
+
+def _fitted(oc, x, a):
+    return float(np.atleast_1d(metrics.fitted_factor(oc.pulse, x, a, oc.orientation, span=1.5))[0])
+
+
+@pytest.mark.parametrize("arrangement", ["stretch", "lens"])
+@pytest.mark.parametrize("factor", [4.0, 0.25])
+def test_reaches_factor_self_sized(arrangement, factor):
+    # the method sizes its own design and reaches the factor within a few per cent (stretch
+    # loses a little to the dispersion penalty, the lens images exactly)
+    x = uwb_pulse()
+    oc = timescale.stretch(x, METHOD, factor, seed=0, arrangement=arrangement)
+    assert _fitted(oc, x, factor) == pytest.approx(factor, rel=0.03)
+    rms = float(np.atleast_1d(metrics.achieved_factor(oc.pulse, x))[0])
+    assert rms == pytest.approx(factor, rel=0.03)
+    assert float(metrics.fit_reference(oc.pulse, x, factor, oc.orientation).nrmse[0]) < 0.05
+
+
+def test_stretch_magnification_formula():
+    # time stretch: M = 1 + Φ2/Φ1 (dispersion time-stretch literature)
+    oc = timescale.stretch(uwb_pulse(), METHOD, 3.0, seed=0)
+    d = oc.design
+    assert 1 + d.gdd_line / d.gdd_chirp == pytest.approx(3.0, rel=1e-12)
+    assert d.gdd_chirp == pytest.approx(1 / (2 * math.pi * d.chirp_rate), rel=1e-12)  # Φ1 = 1/(2πμ)
+    assert oc.orientation == 1
+
+
+def test_compression_uses_opposite_sign():
+    d = timescale.stretch(uwb_pulse(), METHOD, 0.5, seed=0).design
+    assert d.gdd_line * d.gdd_chirp < 0
+
+
+def test_lens_is_time_reversed_and_recorded():
+    # temporal imaging (Kolner & Nazarathy 1989): 1/Φ1 + 1/Φ2 = 1/Φf, M = −Φ2/Φ1; reversed image.
+    # Invented asymmetric pair of pulses (a monocycle reversed is only its negative).
+    g = Pulse.gaussian(sigma=60e-12, center=1.0e-9, duration=3e-9, rate=100e9)
+    x = g.with_values(g.values + 0.5 * np.roll(g.values, 25), name="invented-pair")
+    oc = timescale.stretch(x, METHOD, 4.0, seed=0, arrangement="lens")
+    d = oc.design
+    assert oc.orientation == -1 and "reversed" in oc.path
+    assert 1 / d.gdd_chirp + 1 / d.gdd_line == pytest.approx(1 / d.gdd_focal, rel=1e-12)
+    assert -d.gdd_line / d.gdd_chirp == pytest.approx(d.magnification) and d.magnification == -4.0
+    # the upright fit is poor for an asymmetric pulse; the reversed one is near exact
+    up = float(metrics.fit_reference(oc.pulse, x, 4.0, 1).nrmse[0])
+    down = float(metrics.fit_reference(oc.pulse, x, 4.0, -1).nrmse[0])
+    assert down < 1e-3 < up
+
+
+def test_upright_lens_option():
+    oc = timescale.stretch(uwb_pulse(), METHOD, 2.0, seed=0, arrangement="lens", image="upright")
+    assert oc.orientation == 1 and oc.design.gdd_line * oc.design.gdd_chirp < 0
+
+
+def test_time_stretch_tone_10_to_1_ghz():
+    # Φ1 = 100 ps², Φ2 = 900 ps² ⇒ M = 10: a 10 GHz tone comes out at 1 GHz within 1 %
+    # (dispersion time-stretch literature, M = 1 + Φ2/Φ1)
+    mu = dsp.chirp_rate_from_gdd(100 * PS2)
+    x = Pulse.modulated(carrier=10e9, sigma=150e-12, center=1e-9, duration=2e-9, rate=100e9, name="tone")
+    oc = timescale.stretch(x, METHOD, 10.0, seed=0, chirp_rate=mu, detector="coherent")
+    assert oc.design.gdd_line / PS2 == pytest.approx(900.0, rel=1e-9)
+    y = oc.pulse.row(0)
+    f, spec = y.spectrum(n_fft=64 * y.n)
+    k = int(np.argmax(np.abs(spec)))
+    assert f[k] == pytest.approx(1e9, rel=0.01)
+
+
+def test_penalty_metric_and_warning():
+    x = uwb_pulse()
+    with pytest.warns(DesignWarning, match="dispersion penalty dominates"):
+        oc = timescale.stretch(x, METHOD, 4.0, seed=0, penalty_phase=1.4)
+    est = oc.metrics["penalty_nrmse"].value
+    got = float(metrics.fit_reference(oc.pulse, x, 4.0, 1).nrmse[0])
+    assert est > 0.05
+    # the penalty is (nearly) the whole error of the ideal chain
+    assert got == pytest.approx(est, rel=0.5)
+    null = oc.metrics["penalty_null"].value
+    d = oc.design
+    assert math.cos(d.gdd_line * (2 * math.pi * null) ** 2 / (2 * d.magnification)) == pytest.approx(0, abs=1e-9)
+
+
+def test_refuses_beyond_line_model():
+    x = uwb_pulse()
+    with pytest.raises(ValueError, match="delay-bandwidth product"):
+        timescale.stretch(x, METHOD, 4.0, line="band-limited", finite_q=False, max_dbp=100.0)
+    with pytest.raises(ValueError, match="all-pass sections"):
+        timescale.stretch(x, METHOD, 4.0, line="allpass", max_sections=20)
+    with pytest.raises(ValueError, match="insertion loss"):
+        # reactances of Q = 10 near 0.5 THz
+        timescale.stretch(x, METHOD, 4.0, line="band-limited", max_dbp=1e4)
+
+
+def test_allpass_line_small_design():
+    # a slow invented pulse needs a short line: the all-pass cascade realises it
+    x = Pulse.gaussian(sigma=300e-12, center=2.5e-9, duration=5e-9, rate=20e9, name="invented-slow")
+    oc = timescale.stretch(x, METHOD, 1.5, seed=0, arrangement="lens", image="upright", line="allpass",
+                           finite_q=False)
+    assert len(oc.design.sections) > 0
+    assert _fitted(oc, x, 1.5) == pytest.approx(1.5, rel=0.03)
+    assert oc.metrics["ripple_rms"].value > 0
+
+
+def test_passband_path_agrees_with_baseband():
+    x = uwb_pulse()
+    a = timescale.stretch(x, METHOD, 2.0, seed=0, path="baseband")
+    b = timescale.stretch(x, METHOD, 2.0, seed=0, path="passband")
+    assert "passband" in b.path and "baseband" in a.path
+    na = float(metrics.fit_reference(a.pulse, x, 2.0, 1).nrmse[0])
+    nb = float(metrics.fit_reference(b.pulse, x, 2.0, 1).nrmse[0])
+    assert nb == pytest.approx(na, abs=2e-3)
+
+
+def test_touchstone_line_refused_when_too_narrow():
+    skrf = pytest.importorskip("skrf")
+    path = os.path.join(os.path.dirname(skrf.data.__file__), "ntwk1.s2p")
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", DesignWarning)
+        with pytest.raises(ValueError, match="measured line"):
+            timescale.stretch(uwb_pulse(), METHOD, 0.5, line="touchstone", touchstone=path)
+
+
+def test_bill_counts_and_band():
+    oc = timescale.stretch(uwb_pulse(), METHOD, 2.0, seed=0)
+    b, d = oc.bill, oc.design
+    assert b.bw_internal == pytest.approx(d.chirp_span + 2 * d.signal_band)
+    assert b.counts["inductors"] == 2 * b.counts["sections"] > 0
+    assert b.area > 0 and b.power > 0 and b.energy_per_pulse > 0
+
+
+def test_bad_params_name_themselves():
+    with pytest.raises(ValueError, match="penalty_phase"):
+        timescale.stretch(uwb_pulse(), METHOD, 2.0, penalty_phase=2.0)
+    with pytest.raises(ValueError, match="touchstone"):
+        timescale.stretch(uwb_pulse(), METHOD, 2.0, line="touchstone")
+
+
+@pytest.mark.parametrize("params", [{}, {"arrangement": "lens"}, {"detector": "coherent"}])
+def test_conformance(params):
+    check_method(METHOD, **params)
