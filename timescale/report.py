@@ -283,30 +283,38 @@ def findings(ds: xr.Dataset, *, target: float = DEFAULT_TARGET, fidelity: str = 
                     f"{_range_text([c['power'] for c in cheapest.values()], 'W')}"
                     + (" across these factors." if len(served) > 1 else "."))
         else:
-            text = f"Meets {short} {cmp} {tgt} for {every} at none of the factors tested."
-        # what works first, then what does not
-        order = sorted(pulses, key=lambda q: -sum(verdict[q][f][0] == "meets" for f in tested))
-        for p in order:
-            mine = [f for f in tested if verdict[p][f][0] == "meets"]
-            if n_p > 1 and served and mine == served:
+            text = f"At no factor tested does it meet {short} {cmp} {tgt} for {every}."
+        # the factors it misses, grouped by what happened on each pulse
+        groups: dict[str, list] = {}
+        reasons: list[str] = []
+        for f in tested:
+            if f in served:
                 continue
-            failed_f = [f for f in tested if verdict[p][f][0] == "failed"]
-            missed_f = [f for f in tested if verdict[p][f][0] == "misses"]
-            parts = []
-            if mine and mine != served:
-                parts.append(f"meets it at {_factor_span(mine, list(tested))}")
-            if missed_f:
-                parts.append("misses it at " + ", ".join(
-                    f"α = {_fmt_factor(f)} (best {format_value(verdict[p][f][1], funits, 2)})" for f in missed_f))
-            if failed_f:
-                reason = verdict[p][failed_f[0]][1]
-                reason = reason.split(" (at ")[0]
-                if len(reason) > 260:
-                    reason = reason[:257] + "…"
-                what = "every run failed" if len(failed_f) == len(tested) else \
-                    "runs failed at " + ", ".join(f"α = {_fmt_factor(f)}" for f in failed_f)
-                parts.append(f"{what} ({reason})")
-            text += f" For {p}: " + "; ".join(parts) + "."
+            kinds = []
+            for p in pulses:
+                v = verdict[p][f]
+                if v[0] == "meets":
+                    kinds.append((p, "meets the target"))
+                elif v[0] == "misses":
+                    kinds.append((p, f"best {format_value(v[1], funits, 2)}"))
+                else:
+                    kinds.append((p, "every run failed"))
+                    r = v[1].split(" (at ")[0]
+                    if r and r not in reasons:
+                        reasons.append(r)
+            same = {k for _, k in kinds}
+            if len(same) == 1 and not next(iter(same)).startswith("best"):
+                desc = next(iter(same))
+            else:
+                desc = "; ".join(f"{p}: {k}" if n_p > 1 else k for p, k in kinds)
+            groups.setdefault(desc, []).append(f)
+        if groups:
+            text += " Misses it at " + ", ".join(
+                f"{_factor_span(fs, list(tested)) if len(fs) > 1 else 'α = ' + _fmt_factor(fs[0])} ({d})"
+                for d, fs in groups.items()) + "."
+        for r in reasons[:2]:
+            text += f" Reason given: {r if len(r) <= 260 else r[:257] + '…'}"
+            text += "" if text.endswith(".") else "."
         if n_warned:
             text += f" {n_warned} of {n_cells} runs raised design warnings."
         out.append(Finding(m, tuple(served), tested, cheapest, missed, n_cells, n_failed, n_warned, text,
