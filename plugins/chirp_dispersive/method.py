@@ -212,6 +212,21 @@ def _spiral_area(inductance, width, spacing):
         return math.nan
 
 
+def _spiral_areas(inductances, tech, per_decade: int = 16) -> np.ndarray:
+    """Spiral areas (m²) for many inductances: spirals are sized exactly on a fixed log grid
+    (`per_decade` points, shared by every design, cached) and the area is interpolated in
+    log-log between them (area grows smoothly with L)."""
+    ind = np.asarray(inductances, dtype=float)
+    k = np.arange(math.floor(math.log10(ind.min()) * per_decade),
+                  math.ceil(math.log10(ind.max()) * per_decade) + 1)
+    grid = 10.0 ** (k / per_decade)
+    area = np.array([_spiral_area(float(g), tech.inductor_track_width, tech.inductor_track_spacing)
+                     for g in grid])
+    if grid.size == 1:
+        return np.full(ind.shape, area[0])
+    return np.exp(np.interp(np.log(ind), np.log(grid), np.log(area)))
+
+
 def _q_loss(params, tech, f_c) -> float:
     """Insertion loss per second of delay, dB/s: the delay–loss relation exp(−ωτ/(2Q))."""
     q_loss = 2 * math.pi * f_c / (2 * tech.inductor_q) * _NP_TO_DB if params.finite_q else 0.0
@@ -655,12 +670,10 @@ class ChirpDispersive(Method):
             # constant-resistance lattice of (s² − (ω0/Q)s + ω0²)/(s² + (ω0/Q)s + ω0²): series arm a
             # parallel tank L = R0/(Qω0), C = Q/(R0ω0); cross arm a series LC L = R0Q/ω0,
             # C = 1/(R0Qω0) (standard network theory); an unbridged-T form uses one of each.
-            area_l = area_c = 0.0
-            for w0, q in sections:
-                for ind in (r0 / (q * w0), r0 * q / w0):
-                    area_l += _spiral_area(float(f"{ind:.3g}"), tech.inductor_track_width,
-                                           tech.inductor_track_spacing)
-                area_c += (q / (r0 * w0) + 1 / (r0 * q * w0)) / tech.cap_density
+            sec = np.asarray(sections, dtype=float).reshape(-1, 2)
+            w0, q = sec[:, 0], sec[:, 1]
+            area_l = float(np.sum(_spiral_areas(np.concatenate([r0 / (q * w0), r0 * q / w0]), tech)))
+            area_c = float(np.sum(q / (r0 * w0) + 1 / (r0 * q * w0))) / tech.cap_density
             k = len(sections)
             n_l += 2 * k
             n_c += 2 * k
