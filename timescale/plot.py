@@ -828,6 +828,11 @@ def plot_metric(ds, metric="nrmse", over="factor", *, ax=None, methods=None, sel
         ax.set_xscale("log")
     if logy:
         ax.set_yscale("log")
+    if any_floored and logy:  # room under the floor for the failed-cell marks
+        top = np.nanmax(np.concatenate([a.ravel() for a in allvals] + [[floor * k]]))
+        if target is not None:
+            top = max(top, float(target) * k)
+        ax.set_ylim(floor * k / 6, top * 2)
     _set_coord_ticks(ax, "x", pos, ticklabels, numeric, logx)
     if not numeric:
         ax.set_xlim(-0.5, len(pos) - 0.5)

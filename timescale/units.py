@@ -56,7 +56,8 @@ def format_value(value, units: str = "", digits: int = 4, *, unit: bool = True) 
     if math.isnan(v):
         return "—"
     v, shown = to_display(v, units)
-    text = f"{v:.{digits}g}"
+    # 1390 rather than 1.39e+03: whole numbers up to 10⁶ read better than an exponent
+    text = f"{round(v):d}" if 10 ** digits <= abs(v) < 1e6 else f"{v:.{digits}g}"
     return f"{text} {shown}".rstrip() if unit else text
 
 
