@@ -37,7 +37,6 @@ absolute angular frequencies ω ≥ 0 in rad/s):
 from __future__ import annotations
 
 import math
-import warnings
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -46,7 +45,7 @@ from scipy import optimize
 from scipy import signal as ss
 
 from . import _checks
-from .errors import DesignWarning
+from .signal import analytic
 
 __all__ = [
     "Wave",
@@ -575,7 +574,7 @@ class SampledLine:
     def group_delay_samples(self) -> np.ndarray:
         """Group delay at the sampled frequencies, −d(unwrapped phase)/dω (central
         differences, as scikit-rf's ``Network.group_delay``), s."""
-        return -np.gradient(self._phase, 2.0 * math.pi * self.frequency)
+        return group_delay_of(2.0 * math.pi * self.frequency, self.s21)
 
     def response(self, omega) -> np.ndarray:
         """Interpolated H at absolute angular frequencies (zero outside the sampled band)."""
@@ -1088,8 +1087,7 @@ def envelope(wave: Wave) -> np.ndarray:
     """
     if wave.is_envelope:
         return np.abs(wave.values)
-    n = sfft.next_fast_len(wave.n)
-    return np.abs(ss.hilbert(wave.values, N=n, axis=-1)[..., :wave.n])
+    return np.abs(analytic(wave.values))
 
 
 def lowpass(values, rate: float, cutoff: float, order: int = 4) -> np.ndarray:

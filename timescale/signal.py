@@ -1,8 +1,9 @@
 """Band-limited signal operations shared by the core and the plugins.
 
 One home for: exact band-limited resampling onto any uniform grid, and the continuous Fourier
-transform of a sampled pulse at arbitrary, equally spaced frequencies. Both use the chirp-z
-transform, so the cost is O((n + m) log(n + m)) for any rate ratio.
+transform of a sampled pulse at arbitrary, equally spaced frequencies (both use the chirp-z
+transform, so the cost is O((n + m) log(n + m)) for any rate ratio); the spectral derivative;
+and the analytic signal used by envelope detectors and single-sideband mixers.
 """
 
 from __future__ import annotations
@@ -14,7 +15,7 @@ import numpy as np
 import scipy.fft as sfft
 from scipy import signal as ss
 
-__all__ = ["resample_to", "fourier_at", "derivative"]
+__all__ = ["resample_to", "fourier_at", "derivative", "analytic"]
 
 
 def _trig_coefficients(values: np.ndarray):
@@ -112,3 +113,15 @@ def derivative(values: np.ndarray, rate: float, order: int = 1) -> np.ndarray:
     if n % 2 == 0 and order % 2:
         X[..., -1] = 0.0
     return sfft.irfft(X, n=n, axis=-1)
+
+
+def analytic(values) -> np.ndarray:
+    """Analytic signal x + j·H{x} of real samples (time on the last axis), same length.
+
+    Computed by FFT (``scipy.signal.hilbert``) at the next fast length, zero-padded, so the
+    record is treated as periodic only beyond that padding; when the length is already a
+    fast length nothing is added. |analytic(x)| is the ideal envelope of a band-pass x.
+    """
+    v = np.asarray(values, dtype=float)
+    n = v.shape[-1]
+    return ss.hilbert(v, N=sfft.next_fast_len(n), axis=-1)[..., :n]

@@ -23,7 +23,7 @@ from timescale.plugin import (
     Simulation,
     param,
 )
-from timescale.signal import resample_to
+from timescale.signal import analytic, resample_to
 
 __all__ = ["ChirpDispersive", "ChirpParams", "ChirpDesign"]
 
@@ -545,9 +545,7 @@ class ChirpDispersive(Method):
             u = a1.t[None, :] - t_l - shifts
             lens = lens_gate * np.exp(-0.5j * u * u / design.gdd_focal)
             if passband:  # single-sideband (image-reject) mixer on the analytic signal
-                from scipy.signal import hilbert
-
-                b1 = dsp.Wave(np.real(hilbert(a1.values, axis=-1) * lens), fs, a1.t0, None)
+                b1 = dsp.Wave(np.real(analytic(a1.values) * lens), fs, a1.t0, None)
             else:
                 b1 = a1.with_values(a1.values * lens)
             y = dsp.apply_line(b1, lines[1])
@@ -599,12 +597,7 @@ class ChirpDispersive(Method):
             p_bg, p_x = p[0], p[1:]
             e_bg = np.sqrt(np.maximum(2 * p_bg, 0.0))
         else:
-            if y.is_envelope:
-                v = y.values
-            else:
-                from scipy.signal import hilbert
-
-                v = hilbert(y.values, axis=-1)
+            v = y.values if y.is_envelope else analytic(y.values)
             v_bg, v_x = v[0], v[1:]
             e_bg = np.abs(v_bg)
             if det == "magnitude":
