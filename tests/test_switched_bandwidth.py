@@ -122,8 +122,27 @@ def test_transition_and_finite_gain_and_soft_limit_run():
     # moved to the nearest sub-step edge (first order in the sub-step) and RK4's own error
     soft = ts.stretch(x, "switched-bandwidth", factor=2.0, gm_limit=10.0, substeps=8).pulse.values[0]
     assert np.max(np.abs(soft - lin)) < 1e-2 * np.max(np.abs(lin))
+    # a compressed all-pass cascade is not bound to lose peak: its output is a difference of
+    # large internal signals and compression breaks the cancellation (see simulate_nonlinear);
+    # what must hold is that compression changes the output and the result stays finite
     hard = ts.stretch(x, "switched-bandwidth", factor=2.0, gm_limit=0.01, substeps=8).pulse.values[0]
-    assert np.max(np.abs(hard)) < 0.95 * np.max(np.abs(lin))  # compression lowers the peak
+    assert np.all(np.isfinite(hard)) and np.max(np.abs(hard - lin)) > 0.05 * np.max(np.abs(lin))
+
+
+def test_soft_limit_slew_bound_first_order():
+    # derived bound: a gm-C follower dx/dt = a(φ(u) − φ(x)), |φ| ≤ V_L, cannot move faster
+    # than 2·a·V_L, so a 0.1-long unit pulse lifts it by at most 2·a·V_L·0.1; and the smaller
+    # the limit, the lower the peak (for a single section the slew limit is the only effect)
+    a, dt = 10.0, 1e-3
+    t = np.arange(600) * dt
+    u = ((t > 0.05) & (t < 0.15)).astype(float)
+    sysm = lti.StateSpace([[-a]], [a], [1.0])
+    peaks = []
+    for vl in (2.0, 0.5, 0.1, 0.02):
+        y = lti.simulate_nonlinear(sysm, u, dt, vl, substeps=4)[0]
+        assert np.max(y) <= 2 * a * vl * (0.1 + 2 * dt) + 1e-12
+        peaks.append(np.max(y))
+    assert np.all(np.diff(peaks) < 0)
 
 
 def test_refusals():

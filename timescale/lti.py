@@ -564,7 +564,7 @@ class _Lifted:
         A, B, C, D, _ = system.batched(1)
         Phi, G0, G1 = foh_step(A, B, dt)
         Bd = np.einsum("kij,kj->ki", Phi, G1) + G0
-        Dd = np.einsum("ki,ki->k", np.broadcast_to(C, G1.shape), G1) + D
+        Dd = np.einsum("ki,ki->k", *np.broadcast_arrays(C, G1)) + D  # C may be per trial
         self.Phi, self.G1, self.C, self.Dd, self.Bd = Phi, G1, C, Dd, Bd
         Ks = max(Phi.shape[0], C.shape[0])
         n = A.shape[-1]
@@ -1091,6 +1091,14 @@ def simulate_nonlinear(schedule, u, dt: float, limit: float, *, substeps: int = 
 
     Notes
     -----
+    Compression of a single section only slows it (slew limit 2·|A_ii|·V_L) and lowers its
+    peak monotonically as V_L falls. A cascade need not: every transconductor, including the
+    damping ones, is limited, and an all-pass read-out forms the output as the difference
+    of internal signals (and of the feed-through D·u), so unequal compression breaks that
+    cancellation and the output peak can fall, then rise again as V_L is lowered. That is
+    the model's physics, not an integration error (the RK4 result converges with
+    `substeps`, and agrees with an ngspice tanh behavioural source).
+
     Classical fixed-step RK4 (4th order) with the input linearly interpolated at the stage
     times; the segment is chosen per trial at each sub-step's midpoint, so a switch is moved to
     the nearest sub-step edge (an error of first order in dt/substeps unless the switch lies on

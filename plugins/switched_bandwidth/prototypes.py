@@ -245,7 +245,8 @@ def build(kind: str, order: int, delay: float, termination: str = "matched") -> 
 
 
 def ngspice_netlist(system: StateSpace, node_c: float, t_switch: float, factor: float, *,
-                    ramp: float, source: str, t_stop: float, t_step: float, out_file: str) -> str:
+                    ramp: float, source: str, t_stop: float, t_step: float, out_file: str,
+                    limit: float = 0.0) -> str:
     """An ngspice netlist of the gm-C realization of `system` with its switch.
 
     Each state is a node with capacitance `node_c` to ground; each row of A and B becomes one
@@ -254,8 +255,12 @@ def ngspice_netlist(system: StateSpace, node_c: float, t_switch: float, factor: 
     t_switch + ramp] — so every transconductance, source and load conductance is scaled
     together. The input is the closed-form behavioural expression `source` (a function of
     ``time``); the run starts from zero state (``uic``) and writes the node voltages with one
-    time column to `out_file`.
+    time column to `out_file`. With `limit` = V_L > 0 every transconductor input v is
+    soft-limited to V_L·tanh(v/V_L) (gm compression, as :func:`timescale.lti.simulate_nonlinear`).
     """
+    def vin(name):
+        return f"{limit:.12e}*tanh(V({name})/{limit:.12e})" if limit > 0 else f"V({name})"
+
     A = np.asarray(system.A)
     B = np.asarray(system.B)
     n = A.shape[0]
@@ -263,9 +268,9 @@ def ngspice_netlist(system: StateSpace, node_c: float, t_switch: float, factor: 
              f"Bin in 0 V = {source}",
              f"Vg g 0 PWL(0 1 {t_switch:.12e} 1 {t_switch + ramp:.12e} {1.0 / factor:.12e})"]
     for i in range(n):
-        terms = [f"({node_c * A[i, j]:.15e})*V(n{j})" for j in range(n) if A[i, j] != 0]
+        terms = [f"({node_c * A[i, j]:.15e})*{vin(f'n{j}')}" for j in range(n) if A[i, j] != 0]
         if B[i] != 0:
-            terms.append(f"({node_c * B[i]:.15e})*V(in)")
+            terms.append(f"({node_c * B[i]:.15e})*{vin('in')}")
         lines.append(f"C{i} n{i} 0 {node_c:.6e} IC=0")
         lines.append(f"B{i} 0 n{i} I = V(g)*({' + '.join(terms) or '0'})")
     nodes = " ".join(f"v(n{i})" for i in range(n))
