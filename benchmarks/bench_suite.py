@@ -65,6 +65,13 @@ def _timed(label, suite, tmp, **kw):
     return res, dt
 
 
+def _load():
+    try:
+        return os.getloadavg()[0]
+    except OSError:
+        return float("nan")
+
+
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--suite", default=str(ROOT / "docs" / "suites" / "resample-grid-10k.toml"))
@@ -77,7 +84,8 @@ def main(argv=None):
     if args.pulses:
         suite = dataclasses.replace(suite, pulses=[s for _, s in suite.pulses[: args.pulses]])
     n = suite.n_cells()
-    print(f"suite {suite.name}: {n} cells, {os.cpu_count()} CPUs, Python {sys.version.split()[0]}")
+    print(f"suite {suite.name}: {n} cells, {os.cpu_count()} CPUs, Python {sys.version.split()[0]}, "
+          f"load average {_load():.2f} at start")
     with tempfile.TemporaryDirectory() as tmp:
         serial, t_serial = _timed("serial", suite, tmp)
         print(f"  in-process        {t_serial:8.1f} s  {n / t_serial:8.1f} cells/s  1.00x")
@@ -90,6 +98,14 @@ def main(argv=None):
             client.run(lambda: __import__("timescale").available_methods())  # warm the workers' imports
             dask_res, t_dask = _timed("dask", suite, tmp, client=client)
         print(f"  Dask 2 workers    {t_dask:8.1f} s  {n / t_dask:8.1f} cells/s  {t_serial / t_dask:.2f}x")
+        # the machine is shared: a second in-process run shows how much the load drifted
+        serial2, t_serial2 = _timed("serial2", suite, tmp)
+        base = 0.5 * (t_serial + t_serial2)
+        print(f"  in-process again  {t_serial2:8.1f} s  {n / t_serial2:8.1f} cells/s  "
+              f"(drift {100 * (t_serial2 / t_serial - 1):+.0f} %)")
+        print(f"  speed-up against the mean in-process time: 2 processes {base / t_procs:.2f}x, "
+              f"Dask {base / t_dask:.2f}x (target >= 1.7x)")
+        xr.testing.assert_identical(serial.cube, serial2.cube)
         for label, other in (("2 processes", procs), ("Dask", dask_res)):
             xr.testing.assert_identical(serial.cube, other.cube)
         print("  cubes identical (xarray.testing.assert_identical): yes")
@@ -142,6 +158,7 @@ def main(argv=None):
                   f"with a time limit {t_stub_timeout / m * 1e3:.3f} ms/cell, "
                   f"2 processes {t_stub_p / m * 1e3:.3f} ms/cell (wall)")
             print(f"runner cost against a suite cell: {t_stub / m / t_cell * 100:.2f} % of the cell")
+    print(f"load average {_load():.2f} at the end")
 
 
 if __name__ == "__main__":
