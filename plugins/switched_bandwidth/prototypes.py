@@ -1,7 +1,8 @@
 """Delay prototypes as well-conditioned state-space models with their element values.
 
 Every prototype is a cascade of first- and second-order gm-C sections (Bessel–Thomson, Padé
-all-pass) or a constant-k LC ladder whose inductor currents are carried as gyrator-C node
+all-pass; the Padé gm-C realization with one output summer per section is
+:func:`summed_cascade`) or a constant-k LC ladder whose inductor currents are carried as gyrator-C node
 voltages (i·Z0). In each, a state is a node voltage on a capacitor, a nonzero entry of A or B
 is one transconductor (diagonal entries are damping / termination conductances) and C, D are
 the read-out. With equal node capacitance C_node, every transconductance is C_node·|A_ij|.
@@ -20,7 +21,8 @@ from scipy import signal as ss
 
 from timescale.lti import StateSpace, dc_group_delay
 
-__all__ = ["Prototype", "bessel", "pade", "ladder", "build", "pade_group_delay"]
+__all__ = ["Prototype", "bessel", "pade", "ladder", "build", "pade_group_delay", "summed_cascade",
+           "summer_response"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -244,19 +246,108 @@ def build(kind: str, order: int, delay: float, termination: str = "matched") -> 
     raise ValueError(f"prototype must be 'bessel', 'pade' or 'ladder', got {kind!r}")
 
 
-def ngspice_netlist(system: StateSpace, node_c: float, t_switch: float, factor: float, *,
+def summed_cascade(proto: Prototype, summer_pole: float):
+    """The gm-C realization of a Padé all-pass as sections each driven only by the previous
+    section's output node, through one summer per section.
+
+    Per section (ω0, Q from the prototype; u_k the previous summer node, or the input):
+
+    * second order, two-integrator loop: band-pass node v1, low-pass node v2,
+      dv1/dt = ω0·(u_k − v2) − (ω0/Q)·v1,  dv2/dt = ω0·v1;
+    * first order: dv/dt = a·(u_k − v);
+    * summer node s_k, a transconductor from u_k and one from the section's node into a node
+      loaded by a diode-connected transconductor (gm_L = ω_s·C_s) with its capacitance:
+      ds/dt = ω_s·(u_k − (2/Q)·v1 − s) (all-pass 1 − 2(ω0/Q)s/D(s)), or
+      ds/dt = ω_s·(2v − u_k − s) ((a − s)/(a + s) = −1 + 2a/(s + a)).
+
+    The summer is a node with a finite pole ω_s = `summer_pole` (rad/s), not a memoryless sum:
+    its transconductor noise is white, and only a capacitance on its node keeps the variance
+    of that noise finite. So H(s) = H_Padé(s) · Π_k ω_s/(s + ω_s) (see :func:`summer_response`)
+    and the DC group delay is τ + K/ω_s for K sections. Every nonzero of A or B is one
+    transconductor reading one node voltage; no section reads any node but its own and the
+    previous summer.
+
+    Returns
+    -------
+    system : StateSpace
+        The realization; output = the last summer node (D = 0).
+    roles : tuple of str
+        Per node: "band-pass", "low-pass", "first-order" or "summer".
+    """
+    if proto.kind != "pade":
+        raise ValueError(f"summed_cascade realizes a 'pade' prototype, got {proto.kind!r}")
+    if not (math.isfinite(summer_pole) and summer_pole > 0):
+        raise ValueError(f"summer_pole must be finite and > 0 rad/s, got {summer_pole!r}")
+    secs = _section_order(proto.elements["sections"])
+    n = sum(e["order"] + 1 for e in secs)
+    A = np.zeros((n, n))
+    B = np.zeros(n)
+    roles = []
+    ws = float(summer_pole)
+    prev = None
+
+    def feed(i, g):  # transconductor from this section's input u_k into node i
+        if prev is None:
+            B[i] += g
+        else:
+            A[i, prev] += g
+
+    k = 0
+    for e in secs:
+        if e["order"] == 1:
+            a = e["w0"]
+            v, s = k, k + 1
+            A[v, v] = -a
+            feed(v, a)
+            A[s, s] = -ws
+            A[s, v] = 2.0 * ws
+            feed(s, -ws)
+            roles += ["first-order", "summer"]
+        else:
+            w, q = e["w0"], e["Q"]
+            v1, v2, s = k, k + 1, k + 2
+            A[v1, v1] = -w / q
+            A[v1, v2] = -w
+            A[v2, v1] = w
+            feed(v1, w)
+            A[s, s] = -ws
+            A[s, v1] = -2.0 / q * ws
+            feed(s, ws)
+            roles += ["band-pass", "low-pass", "summer"]
+        prev = s
+        k = s + 1
+    C = np.zeros(n)
+    C[-1] = 1.0
+    return StateSpace(A, B, C, 0.0), tuple(roles)
+
+
+def _section_order(elems):
+    """Sections in the order of :func:`_sections_from_poles` (first-order, then rising Q)."""
+    return [e for e in elems if e["order"] == 1] + [e for e in elems if e["order"] == 2]
+
+
+def summer_response(proto: Prototype, summer_pole: float, f) -> np.ndarray:
+    """H(j2πf) of :func:`summed_cascade`: the Padé all-pass times one pole ω_s per section."""
+    K = len(proto.elements["sections"])
+    s = 2j * np.pi * np.asarray(f, dtype=float)
+    return proto.response(f) * (summer_pole / (s + summer_pole)) ** K
+
+
+def ngspice_netlist(system: StateSpace, node_c, t_switch: float, factor: float, *,
                     ramp: float, source: str, t_stop: float, t_step: float, out_file: str,
-                    limit: float = 0.0) -> str:
+                    limit: float = 0.0, roles=None) -> str:
     """An ngspice netlist of the gm-C realization of `system` with its switch.
 
-    Each state is a node with capacitance `node_c` to ground; each row of A and B becomes one
-    behavioural current source C_node·(Σ A_ij v_j + B_i v_in)·g(t) into its node, where g(t)
-    is a piecewise-linear control voltage that ramps from 1 to 1/α over [t_switch,
-    t_switch + ramp] — so every transconductance, source and load conductance is scaled
-    together. The input is the closed-form behavioural expression `source` (a function of
-    ``time``); the run starts from zero state (``uic``) and writes the node voltages with one
-    time column to `out_file`. With `limit` = V_L > 0 every transconductor input v is
-    soft-limited to V_L·tanh(v/V_L) (gm compression, as :func:`timescale.lti.simulate_nonlinear`).
+    Node i has capacitance `node_c` (F; a scalar, or one value per node) to ground. Every
+    nonzero A_ij (and B_i) is one transconductor, written as its own behavioural current
+    source gm·v_j·g(t) into node i with gm = C_i·A_ij, where g(t) is a piecewise-linear control
+    voltage that ramps from 1 to 1/α over [t_switch, t_switch + ramp] — so every
+    transconductance (integrators, damping, summers and their loads) is scaled together.
+    The input is the closed-form behavioural expression `source` (a function of ``time``);
+    the run starts from zero state (``uic``) and writes the node voltages with one time
+    column to `out_file`. With `limit` = V_L > 0 every transconductor input v is soft-limited
+    to V_L·tanh(v/V_L) (gm compression, as :func:`timescale.lti.simulate_nonlinear`).
+    `roles` (one name per node) only labels the nodes in comments.
     """
     def vin(name):
         return f"{limit:.12e}*tanh(V({name})/{limit:.12e})" if limit > 0 else f"V({name})"
@@ -264,15 +355,18 @@ def ngspice_netlist(system: StateSpace, node_c: float, t_switch: float, factor: 
     A = np.asarray(system.A)
     B = np.asarray(system.B)
     n = A.shape[0]
+    cn = np.broadcast_to(np.asarray(node_c, dtype=float), (n,))
     lines = ["* switched gm-C delay filter (generated)",
              f"Bin in 0 V = {source}",
              f"Vg g 0 PWL(0 1 {t_switch:.12e} 1 {t_switch + ramp:.12e} {1.0 / factor:.12e})"]
     for i in range(n):
-        terms = [f"({node_c * A[i, j]:.15e})*{vin(f'n{j}')}" for j in range(n) if A[i, j] != 0]
+        lines.append(f"* node n{i}" + (f": {roles[i]}" if roles is not None else ""))
+        lines.append(f"C{i} n{i} 0 {cn[i]:.9e} IC=0")
+        srcs = [(f"n{j}", A[i, j], f"G{i}_{j}") for j in range(n) if A[i, j] != 0]
         if B[i] != 0:
-            terms.append(f"({node_c * B[i]:.15e})*{vin('in')}")
-        lines.append(f"C{i} n{i} 0 {node_c:.6e} IC=0")
-        lines.append(f"B{i} 0 n{i} I = V(g)*({' + '.join(terms) or '0'})")
+            srcs.append(("in", B[i], f"G{i}_in"))
+        for node, a, name in srcs:
+            lines.append(f"B{name[1:]} 0 n{i} I = V(g)*({cn[i] * a:.15e})*{vin(node)}")
     nodes = " ".join(f"v(n{i})" for i in range(n))
     lines += [".control", "set wr_singlescale", "set wr_vecnames",
               f"tran {t_step:.6e} {t_stop:.6e} uic", f"wrdata {out_file} {nodes} v(in)",
