@@ -165,6 +165,19 @@ _WORKER: tuple | None = None  # (plan, entropy), set once per worker process
 def _init_worker(plan, entropy):
     global _WORKER
     _WORKER = (plan, entropy)
+    # the parent coordinates a stop: workers ignore Ctrl-C (sent to the whole process group)
+    # and die on SIGTERM, whatever handler the parent had installed before forking them
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+    # a pool worker whose parent was killed (SIGKILL, crash) would otherwise wait forever
+    parent = os.getppid()
+
+    def _watch():
+        while os.getppid() == parent:
+            time.sleep(0.5)
+        os._exit(1)
+
+    threading.Thread(target=_watch, name="timescale-parent-watch", daemon=True).start()
 
 
 def _process_chunk(indices):
