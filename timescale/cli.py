@@ -39,7 +39,9 @@ def _cmd_methods(args) -> int:
 
 def _cmd_demo(args) -> int:
     from . import cube as cube_mod
-    from .demo import DEMO_FACTORS, DEMO_SAMPLER_JITTER, DESCRIPTION, demo_pulses
+    from .demo import (DEMO_FACTORS, DEMO_SAMPLER_JITTER, DEMO_TRIALS, DESCRIPTION, demo_params,
+                       demo_pulses)
+    from .registry import available_methods
     from .run import compare
     from .summary import cell_table
 
@@ -48,8 +50,8 @@ def _cmd_demo(args) -> int:
     print()
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # cell warnings are recorded in the cube
-        ds = compare(demo_pulses(), None, DEMO_FACTORS, seed=args.seed,
-                     sampler_jitter=DEMO_SAMPLER_JITTER)
+        ds = compare(demo_pulses(), None, DEMO_FACTORS, seed=args.seed, trials=DEMO_TRIALS,
+                     sampler_jitter=DEMO_SAMPLER_JITTER, **demo_params(available_methods()))
     ds.attrs["scenario"] = DESCRIPTION
     cube_mod.save_cube(ds, out)
     print(cell_table(ds))

@@ -21,7 +21,8 @@ import xarray as xr
 
 from .metrics import METRICS
 
-__all__ = ["Axis", "assemble", "save_cube", "load_cube", "waveforms_dataset", "ENGINE", "CELL_DIMS"]
+__all__ = ["Axis", "assemble", "save_cube", "load_cube", "waveforms_dataset", "input_pulses", "ENGINE",
+           "CELL_DIMS"]
 
 #: NetCDF engine used for every read and write (NetCDF-4 through h5netcdf).
 ENGINE = "h5netcdf"
@@ -55,7 +56,7 @@ def _package_version() -> str:
         return "unknown"
 
 
-def assemble(rows, axes, *, trials=1, provenance=None, methods=()):
+def assemble(rows, axes, *, trials=1, provenance=None, methods=(), pulses=None):
     """Build the cube from rows whose ``index`` is the C-order position on `axes`.
 
     Parameters
@@ -69,6 +70,10 @@ def assemble(rows, axes, *, trials=1, provenance=None, methods=()):
         Extra attributes (str/int/float).
     methods : sequence of Method
         For plugin versions and summaries in the attributes.
+    pulses : Mapping[str, Pulse], optional
+        The input pulses, stored in the cube (``input_value`` over ``pulse`` and
+        ``input_sample``, with ``input_t0`` and ``input_rate``) so that figures can re-run
+        a cell from the cube alone; see :func:`input_pulses`.
     """
     rows = list(rows)
     shape = tuple(len(a.values) for a in axes)
@@ -113,6 +118,8 @@ def assemble(rows, axes, *, trials=1, provenance=None, methods=()):
         ds[k] = xr.DataArray(arr.reshape(shape), dims=dims, attrs={"units": "", "long_name": ln})
     ds["orientation"] = xr.DataArray(orientation.reshape(shape), dims=dims,
                                      attrs={"units": "", "long_name": "image orientation (+1 upright, -1 time-reversed)"})
+    if pulses:
+        ds = ds.merge(_inputs_dataset(pulses, [str(v) for v in next(a.values for a in axes if a.name == "pulse")]))
     for a in axes:
         vals = np.asarray(a.values, dtype=object if isinstance(a.values[0], str) else None)
         at = dict(_COORD_ATTRS.get(a.name, {"units": a.units, "long_name": a.long_name or a.name}))
@@ -133,6 +140,39 @@ def assemble(rows, axes, *, trials=1, provenance=None, methods=()):
             v = json.dumps(v, sort_keys=True, default=str)
         ds.attrs[k] = v
     return ds
+
+
+def _inputs_dataset(pulses, order) -> xr.Dataset:
+    n = max(pulses[k].n for k in order)
+    values = np.full((len(order), n), np.nan)
+    for i, k in enumerate(order):
+        values[i, : pulses[k].n] = pulses[k].values
+    units = {pulses[k].units for k in order}
+    return xr.Dataset({
+        "input_value": xr.DataArray(values, dims=("pulse", "input_sample"), attrs={
+            "units": units.pop() if len(units) == 1 else "", "long_name": "input pulse samples (NaN past the record)"}),
+        "input_t0": xr.DataArray(np.array([pulses[k].t0 for k in order]), dims=("pulse",),
+                                 attrs={"units": "s", "long_name": "time of the first input sample"}),
+        "input_rate": xr.DataArray(np.array([pulses[k].rate for k in order]), dims=("pulse",),
+                                   attrs={"units": "Hz", "long_name": "input sample rate"}),
+    })
+
+
+def input_pulses(ds: xr.Dataset) -> dict:
+    """The input pulses stored in a cube, ``{name: Pulse}`` (empty when the cube has none)."""
+    from .pulse import Pulse
+
+    if "input_value" not in ds:
+        return {}
+    units = ds["input_value"].attrs.get("units", "") or "V"
+    out = {}
+    for name in ds["pulse"].values:
+        sel = {"pulse": name}
+        v = np.asarray(ds["input_value"].sel(sel).values, dtype=float)
+        v = v[: int(np.sum(np.isfinite(v)))]
+        out[str(name)] = Pulse(v, float(ds["input_rate"].sel(sel)), float(ds["input_t0"].sel(sel)),
+                               units, str(name))
+    return out
 
 
 def waveforms_dataset(rows, axes):

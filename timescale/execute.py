@@ -540,7 +540,8 @@ def run_suite(suite, *, workers=None, scheduler=None, client=None, checkpoint=No
     }
     if suite.description:
         provenance["description"] = suite.description
-    cube = assemble(rows, plan.axes(), trials=plan.trials, provenance=provenance, methods=methods)
+    cube = assemble(rows, plan.axes(), trials=plan.trials, provenance=provenance, methods=methods,
+                    pulses=plan.pulses)
     waves = waveforms_dataset(rows, plan.axes()) if plan.keep_waveform else None
     if out is not None:
         save_cube(cube, out, overwrite=overwrite)

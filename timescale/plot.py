@@ -390,7 +390,9 @@ def pareto_mask(cost, badness) -> np.ndarray:
 
 def _output_view(oc, trial):
     """Output of an outcome mapped onto the input's time: τ = (t − d)/α, amplitude y/g, with
-    the ideal x(±τ) and the residual on the same τ grid (all relative to the input peak)."""
+    the ideal and the residual on the same τ grid (all relative to the input peak). A
+    time-reversed image (orientation −1) is mapped with τ = −(t − d)/α, so it lies on x(τ)
+    like every other output."""
     from . import metrics
     from .signal import resample_to
 
@@ -406,7 +408,7 @@ def _output_view(oc, trial):
     if up > 1.0:
         n_up = int(y.n * up)
         y = resample_to(y, y.rate * up, t_start=y.t0, n=n_up)
-    tau = (y.t - d) / a
+    tau = o * (y.t - d) / a
     ref = metrics.reference(x, a, o).shift(d)
     pad_before = max(0.0, ref.t0 - y.t0) + ref.dt
     pad_after = max(0.0, y.t_end - ref.t_end) + ref.dt
@@ -515,10 +517,10 @@ def plot_waveforms(outcomes, *, ax=None, trial=0, residual=True, window=None, ti
         import matplotlib.pyplot as plt
 
         if residual:
-            fig, (ax, rax) = plt.subplots(2, 1, figsize=(7.0, 5.2), sharex=True, layout="constrained",
+            fig, (ax, rax) = plt.subplots(2, 1, figsize=(7.0 + 3.5 * (legend is True), 5.2), sharex=True, layout="constrained",
                                           gridspec_kw={"height_ratios": [3, 1.3]})
         else:
-            fig, ax = plt.subplots(figsize=(7.0, 4.0), layout="constrained")
+            fig, ax = plt.subplots(figsize=(7.0 + 3.5 * (legend is True), 4.0), layout="constrained")
     elif isinstance(ax, (list, tuple)) and len(ax) == 2:
         ax, rax = ax
         fig = ax.figure
@@ -549,15 +551,14 @@ def plot_waveforms(outcomes, *, ax=None, trial=0, residual=True, window=None, ti
         n_same = per_method_count.get(o.method, 0)
         per_method_count[o.method] = n_same + 1
         ls = ("-", "--", "-.", ":")[n_same % 4] if n_same else st["linestyle"]
-        if int(o.orientation) not in seen_orient:
-            seen_orient[int(o.orientation)] = True
-            lab = "ideal x(τ)" if o.orientation == 1 else "ideal x(−τ) (time-reversed image)"
-            art.setdefault("ideal", ())
-            art["ideal"] += tuple(ax.plot(tau * k_t, rn, label=lab, zorder=6, **IDEAL_STYLE))
+        if not seen_orient:
+            seen_orient[1] = True
+            art["ideal"] = tuple(ax.plot(tau * k_t, rn, label="ideal x(τ)", zorder=6, **IDEAL_STYLE))
         markevery = max(1, tau.size // 14)
+        note = ", time-reversed image drawn reversed" if int(o.orientation) == -1 else ""
         art[label] = tuple(ax.plot(tau * k_t, yn, color=st["color"], linestyle=ls, marker=st["marker"],
                                    markevery=markevery, markersize=4, linewidth=1.4,
-                                   label=f"{label} (g = {g:.3g})", zorder=4))
+                                   label=f"{label} (g = {g:.3g}{note})", zorder=4))
         if rax is not None:
             art[f"residual:{label}"] = tuple(rax.plot(tau * k_t, res, color=st["color"], linestyle=ls,
                                                       marker=st["marker"], markevery=markevery,
@@ -581,7 +582,8 @@ def plot_waveforms(outcomes, *, ax=None, trial=0, residual=True, window=None, ti
     ax.set_title(title or ("Output waveforms against the ideal scaled pulse, α = "
                            + ", ".join(f"{f:g}" for f in factors)), fontsize="medium")
     _finish(ax)
-    leg = _legend(ax, legend, loc="upper right")
+    # a pulse fills its panel edge to edge: the legend goes beside it unless asked otherwise
+    leg = _legend(ax, "outside" if legend is True else legend)
     return Drawing(fig, tuple(axes), art, leg, data)
 
 

@@ -29,6 +29,7 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
+from .cube import input_pulses
 from .units import display_unit, format_value, scaled_unit
 
 __all__ = ["write_report", "findings", "cell_summary", "Finding", "CellRow", "DEFAULT_TARGET"]
@@ -330,12 +331,9 @@ def _recover_pulses(ds, pulses):
         if missing:
             raise ValueError(f"pulses lacks the cube's pulse(s) {', '.join(map(repr, missing))}")
         return dict(pulses), ""
-    from .demo import DESCRIPTION, demo_pulses
-
-    if ds.attrs.get("scenario") == DESCRIPTION:
-        demo = demo_pulses()
-        if all(str(p) in demo for p in ds["pulse"].values):
-            return demo, ""
+    stored = input_pulses(ds)
+    if stored and all(str(p) in stored for p in ds["pulse"].values):
+        return stored, ""
     return None, ("The input pulses are not stored in the results cube, so the waveforms and "
                   "spectra could not be re-run (pass the pulses to write_report to include them).")
 
@@ -504,7 +502,7 @@ def _build_figures(ds, *, target, fidelity, outcomes, pname, factor):
                      "One map per method on a shared colour scale (median over pulses and trials); "
                      "grey cells failed.", fig))
     if outcomes:
-        fig = _figure((7.6, 5.6))
+        fig = _figure((11.0, 5.6))  # room for the legend beside the panels
         a, r = fig.subplots(2, 1, sharex=True, gridspec_kw={"height_ratios": [3, 1.3]})
         plot.plot_waveforms(outcomes, ax=[a, r],
                             title=f"Waveforms at α = {factor:g}, {pname}, mapped back onto the input's time")

@@ -255,40 +255,13 @@ def measure(oc: Outcome, sampler_jitter: float = DEFAULT_SAMPLER_JITTER):
 
 # ---- compare ---------------------------------------------------------------------------------
 
-def _pulses(pulses) -> dict[str, Pulse]:
-    if isinstance(pulses, Pulse):
-        return {pulses.name: _check_pulse(pulses)}
-    if isinstance(pulses, Mapping):
-        if not pulses:
-            raise ValueError("pulses must not be empty")
-        return {str(k): _check_pulse(p, f"pulses[{k!r}]") for k, p in pulses.items()}
-    raise TypeError(f"pulses must be a Pulse or a mapping of names to pulses, got {type(pulses).__name__}")
-
-
-def _split_params(methods: list[Method], params: dict) -> dict[str, dict]:
-    """Give each method the parameters it has; a name no method has is an error."""
-    per = {m.name: {} for m in methods}
-    for key, value in params.items():
-        owners = [m for m in methods if key in m.param_fields()]
-        if not owners:
-            valid = sorted({k for m in methods for k in m.param_fields()})
-            from .errors import closest
-
-            raise TypeError(
-                f"no selected method has a parameter {key!r}{closest(key, valid)}; valid "
-                f"parameters: {', '.join(valid) or '(none)'}"
-            )
-        for m in owners:
-            per[m.name][key] = value
-    for m in methods:
-        m.make_params(**per[m.name])  # type/choice errors now, before any work
-    return per
-
-
 def compare(pulses, methods=None, factors=(2.0,), *, trials: int = 1, seed=None,
             technology: Technology | None = None, sampler_jitter: float = DEFAULT_SAMPLER_JITTER,
             **params):
     """Run every pulse through every method at every factor; return the results cube.
+
+    A shorthand for an in-process :class:`~timescale.Suite` without sweeps (one home for
+    building cubes: :func:`timescale.run_suite`).
 
     Parameters
     ----------
@@ -307,48 +280,32 @@ def compare(pulses, methods=None, factors=(2.0,), *, trials: int = 1, seed=None,
     sampler_jitter : float
         RMS jitter for the jitter-limited SNR metrics, s.
     **params
-        Method parameters; each goes to every selected method that has it.
+        Method parameters: ``name=value`` goes to every selected method that has the
+        parameter; ``method_name={...}`` (as ``**{"switched-bandwidth": {...}}``) to that
+        method only.
 
     Returns
     -------
     xarray.Dataset
         Dims ``method``, ``pulse``, ``factor`` (and ``trial``), one variable per metric with
-        ``units`` and ``long_name``, ``status`` and ``message`` per cell, provenance attributes.
+        ``units`` and ``long_name``, ``status`` and ``message`` per cell, the input pulses,
+        provenance attributes.
     """
-    from .cube import Axis, assemble
+    from .execute import run_suite
+    from .suite import Suite
 
-    pulse_map = _pulses(pulses)
-    from .registry import available_methods
-
-    mlist = [get_method(m) for m in (available_methods() if methods is None else methods)]
-    if not mlist:
-        raise ValueError("methods must name at least one method")
-    names = [m.name for m in mlist]
-    if len(set(names)) != len(names):
-        raise ValueError(f"methods must not repeat a method: {names}")
-    flist = [_check_factor(f) for f in np.atleast_1d(np.asarray(factors, dtype=object))]
-    trials = _check_trials(trials)
-    jitter = _checks.positive("sampler_jitter", sampler_jitter)
-    tech = technology or DEFAULT_TECHNOLOGY
-    if not isinstance(tech, Technology):
-        raise TypeError(f"technology must be a timescale.Technology, got {type(tech).__name__}")
-    per = _split_params(mlist, params)
-    ss = np.random.SeedSequence(seed)
-    axes = [Axis("method", names), Axis("pulse", list(pulse_map)), Axis("factor", flist)]
-    specs = []
-    for i, (m, pname, f) in enumerate(
-        (m, p, f) for m in mlist for p in pulse_map for f in flist
-    ):
-        specs.append(CellSpec(i, m, per[m.name], pname, pulse_map[pname], f, trials,
-                              ss.entropy, tech, jitter))
-    rows = [run_cell(s) for s in specs]
-    provenance = {
-        "seed_entropy": str(ss.entropy),
-        "technology": tech.to_json(),
-        "params": json.dumps({k: _jsonable(v) for k, v in per.items()}, sort_keys=True),
-        "sampler_jitter": jitter,
-    }
-    return assemble(rows, axes, trials=trials, provenance=provenance, methods=mlist)
+    if isinstance(pulses, Pulse):
+        pulses = {pulses.name: pulses}
+    if isinstance(pulses, Mapping):
+        for k, p in pulses.items():
+            _check_pulse(p, f"pulses[{k!r}]")
+    if technology is not None and not isinstance(technology, Technology):
+        raise TypeError(f"technology must be a timescale.Technology, got {type(technology).__name__}")
+    factors = [_check_factor(f) for f in np.atleast_1d(np.asarray(factors, dtype=object))]
+    suite = Suite(pulses=pulses, methods=methods, factors=factors, params=params,
+                  trials=_check_trials(trials), seed=seed, technology=technology,
+                  sampler_jitter=_checks.positive("sampler_jitter", sampler_jitter))
+    return run_suite(suite, progress=False).cube
 
 
 def _jsonable(d):

@@ -81,8 +81,8 @@ def cube_overview(ds: xr.Dataset) -> str:
         lines.append(f"  {d:<16} {size:>6}  {span}")
     lines.append("metrics:")
     for k, v in ds.data_vars.items():
-        if k in ("status", "message", "design", "bill", "path", "orientation"):
-            continue
+        if k in ("status", "message", "design", "bill", "path", "orientation") or "method" not in v.dims:
+            continue  # per-cell records and the stored input pulses are not metrics
         unit, _ = display_unit(v.attrs.get("units", ""))
         lines.append(f"  {k:<22} {('(' + unit + ')') if unit else '':<8} {v.attrs.get('long_name', '')}")
     return "\n".join(lines)
