@@ -1,7 +1,6 @@
 """Tests of the switched-bandwidth method against outside references."""
 
 import math
-import warnings
 
 import numpy as np
 import pytest

@@ -12,6 +12,16 @@ from timescale_builtins.switched_bandwidth import prototypes
 pytestmark = pytest.mark.ngspice
 
 
+def _run_ngspice(folder, net, out, system):
+    """Run `net` in ngspice batch mode; return its time points and the read-out y = C·x + D·u."""
+    (folder / "f.cir").write_text(net)
+    subprocess.run(["ngspice", "-b", str(folder / "f.cir")], cwd=folder, check=True,
+                   capture_output=True, timeout=120)
+    data = np.loadtxt(out, skiprows=1)
+    t_sp, nodes, vin = data[:, 0], data[:, 1:-1], data[:, -1]
+    return t_sp, nodes @ np.asarray(system.C) + float(system.D) * vin
+
+
 @pytest.mark.skipif(shutil.which("ngspice") is None, reason="the ngspice binary is not installed")
 def test_switched_gmc_against_ngspice(tmp_path):
     # 6th-order Padé all-pass as three sections, each with its output summer (9 nodes, each
@@ -31,15 +41,8 @@ def test_switched_gmc_against_ngspice(tmp_path):
     # one element per transconductor: summers' feed-through, feed-forward and load included
     assert sum(line.startswith("B") for line in net.splitlines()) - 1 == \
         np.count_nonzero(system.A) + np.count_nonzero(system.B)
-    (tmp_path / "f.cir").write_text(net)
-    subprocess.run(["ngspice", "-b", str(tmp_path / "f.cir")], cwd=tmp_path, check=True,
-                   capture_output=True, timeout=120)
-    data = np.loadtxt(out, skiprows=1)
-    t_sp, nodes, vin = data[:, 0], data[:, 1:-1], data[:, -1]
-    C = np.asarray(system.C)
-    y_sp = nodes @ C + float(system.D) * vin
-    N = int(round(t_stop / dt)) + 1
-    t = np.arange(N) * dt
+    t_sp, y_sp = _run_ngspice(tmp_path, net, out, system)
+    t = np.arange(int(round(t_stop / dt)) + 1) * dt
     u = np.exp(-0.5 * ((t - tc) / sig) ** 2)
     # ngspice's PWL ramp runs over [ts, ts + ramp]; ours is centred on the given instant
     sch = lti.Schedule.switched(system, alpha, ts + ramp / 2, ramp=ramp, segments=32)
@@ -68,15 +71,8 @@ def test_compressed_gmc_against_ngspice_tanh(tmp_path):
     net = prototypes.ngspice_netlist(
         system, c_node, ts, alpha, ramp=ramp, limit=vl,
         source=f"{amp}*exp(-0.5*((time-{tc})/{sig})^2)", t_stop=t_stop, t_step=dt, out_file=str(out))
-    (tmp_path / "f.cir").write_text(net)
-    subprocess.run(["ngspice", "-b", str(tmp_path / "f.cir")], cwd=tmp_path, check=True,
-                   capture_output=True, timeout=120)
-    data = np.loadtxt(out, skiprows=1)
-    t_sp, nodes, vin = data[:, 0], data[:, 1:-1], data[:, -1]
-    C = np.asarray(system.C)
-    y_sp = nodes @ C + float(system.D) * vin
-    N = int(round(t_stop / dt)) + 1
-    t = np.arange(N) * dt
+    t_sp, y_sp = _run_ngspice(tmp_path, net, out, system)
+    t = np.arange(int(round(t_stop / dt)) + 1) * dt
     u = amp * np.exp(-0.5 * ((t - tc) / sig) ** 2)
     sch = lti.Schedule.switched(system, alpha, ts + ramp / 2, ramp=ramp, segments=8)
     y = lti.simulate_nonlinear(sch, u, dt, vl, substeps=8)[0]

@@ -4,10 +4,12 @@ what would be valid."""
 from __future__ import annotations
 
 import math
+import tomllib
+from pathlib import Path
 
 import numpy as np
 
-__all__ = ["positive", "finite", "nonnegative", "finite_array", "choice", "fraction"]
+__all__ = ["positive", "finite", "nonnegative", "finite_array", "choice", "fraction", "read_toml"]
 
 
 def _is_real(value) -> bool:
@@ -88,3 +90,16 @@ def choice(name: str, value, valid) -> str:
             + closest(value, valid)
         )
     return value
+
+
+def read_toml(path, what: str) -> dict:
+    """Read a TOML file; a missing or malformed file raises ValueError naming it as `what`
+    ("suite file", "technology file")."""
+    path = Path(path)
+    try:
+        with path.open("rb") as fh:
+            return tomllib.load(fh)
+    except FileNotFoundError:
+        raise ValueError(f"{what} {str(path)!r} does not exist") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise ValueError(f"{what} {str(path)!r} is not valid TOML: {exc}") from None

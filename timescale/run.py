@@ -306,7 +306,3 @@ def compare(pulses, methods=None, factors=(2.0,), *, trials: int = 1, seed=None,
                   trials=_check_trials(trials), seed=seed, technology=technology,
                   sampler_jitter=_checks.positive("sampler_jitter", sampler_jitter))
     return run_suite(suite, progress=False).cube
-
-
-def _jsonable(d):
-    return {k: (v if isinstance(v, (str, int, float, bool)) or v is None else repr(v)) for k, v in d.items()}

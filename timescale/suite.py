@@ -56,14 +56,14 @@ from __future__ import annotations
 import inspect
 import json
 import math
-import tomllib
-from collections.abc import Mapping, Sequence
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
+from ._checks import read_toml
 from .errors import closest
 from .pulse import Pulse
 from .technology import DEFAULT_TECHNOLOGY, PRESETS, Technology
@@ -464,13 +464,7 @@ class Suite:
         Relative CSV and technology-card paths are resolved against the file's folder.
         """
         path = Path(path)
-        try:
-            with path.open("rb") as fh:
-                data = tomllib.load(fh)
-        except FileNotFoundError:
-            raise ValueError(f"suite file {str(path)!r} does not exist") from None
-        except tomllib.TOMLDecodeError as exc:
-            raise ValueError(f"suite file {str(path)!r} is not valid TOML: {exc}") from None
+        data = read_toml(path, "suite file")
         return cls.from_dict(data, base_dir=path.resolve().parent, where=f"suite file {str(path)!r}: ")
 
     # -- description ------------------------------------------------------------------------

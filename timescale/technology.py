@@ -17,10 +17,9 @@ from __future__ import annotations
 
 import dataclasses
 import json
-import tomllib
 from dataclasses import dataclass, fields
-from pathlib import Path
 
+from ._checks import read_toml
 from .errors import closest
 
 __all__ = ["Technology", "PRESETS", "preset", "DEFAULT_TECHNOLOGY"]
@@ -130,14 +129,7 @@ class Technology:
     @classmethod
     def from_toml(cls, path) -> "Technology":
         """Load a card from a TOML file (see the module docstring for the form)."""
-        path = Path(path)
-        try:
-            with path.open("rb") as fh:
-                data = tomllib.load(fh)
-        except FileNotFoundError:
-            raise ValueError(f"technology file {str(path)!r} does not exist") from None
-        except tomllib.TOMLDecodeError as exc:
-            raise ValueError(f"technology file {str(path)!r} is not valid TOML: {exc}") from None
+        data = read_toml(path, "technology file")
         return cls.from_dict(data, where=f"technology file {str(path)!r}")
 
 

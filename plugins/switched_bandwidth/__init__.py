@@ -480,7 +480,6 @@ class SwitchedBandwidth(Method):
             warnings.warn("gm_mismatch, gm_ro and gm_limit do not apply to a passive LC "
                           "realization; ignored", DesignWarning, stacklevel=2)
         K = int(trials)
-        varying = False
         # draws in a fixed order so the same seed gives the same result
         mis_a = rng.standard_normal((K,) + A.shape)
         mis_b = rng.standard_normal((K,) + B.shape)
@@ -488,7 +487,6 @@ class SwitchedBandwidth(Method):
         if params.gm_mismatch > 0 and not passive:
             A = A * (1 + params.gm_mismatch * mis_a * (A != 0))
             B = B * (1 + params.gm_mismatch * mis_b * (B != 0))
-            varying = True
         if params.gm_ro > 0 and not passive:
             # each transconductor loads its output node with gds = gm/(gm·r_o)
             loss = (np.abs(A).sum(axis=-1) + np.abs(B)) / params.gm_ro
@@ -501,7 +499,6 @@ class SwitchedBandwidth(Method):
         t_sw = design.t_switch - x.t0
         if params.jitter > 0:
             t_sw = t_sw + params.jitter * jit
-            varying = True
         sched = lti.Schedule.switched(sysm, a, t_sw, ramp=params.transition,
                                       segments=params.transition_segments)
         if params.gm_limit > 0 and not passive:

@@ -19,7 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import signal as ss
 
-from timescale.lti import StateSpace, dc_group_delay
+from timescale.lti import StateSpace
 
 __all__ = ["Prototype", "bessel", "pade", "ladder", "build", "pade_group_delay", "summed_cascade",
            "summer_response"]

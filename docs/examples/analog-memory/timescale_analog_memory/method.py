@@ -185,7 +185,6 @@ class AnalogMemory(Method):
         # input periods (in cell slots) that fall before and after the written window
         lost_before = int(math.floor(p.window_start * f_w + 1e-9))
         lost_after = max(0, available - used)
-        t_last = t_s + used / f_w
         fraction = _energy_fraction(pulse, t_s - 0.5 / f_w, t_s + (used - 0.5) / f_w)
         f_r = f_w / factor
         cap = costs.capacitance_for_noise(p.noise_target, technology.temperature)
