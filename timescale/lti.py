@@ -34,11 +34,16 @@ Repeating schedules
     Equal systems (same A, B, C, D, Q, even as distinct objects) share one discretization.
     The stretches of one system are grouped: the input-driven products of all of them are
     done at once, and for a system shared by all trials the whole stretch is one affine map
-    of the state, so a pulse train switched in every period costs one small product per
-    switch interval. An interval that holds a boundary gets a composite exact step; when
-    all trials share the boundaries and systems it depends only on the systems and the
-    sub-step lengths and is reused (edges taken to 1e-9 of the sample interval). Blocks of
-    input below 2⁻⁶⁴ of the record's peak are skipped (their share is below rounding).
+    of the state. When all trials also share the boundaries, every piece of the record (a
+    stretch, or a sample interval that holds boundaries, integrated by exact sub-steps) is
+    an affine map ``x_end = M x_start + W u[start:end+1]`` that depends only on its kind
+    (system, length, sub-sample offsets, edges taken to 1e-9 of the sample interval): a
+    periodic schedule has a few kinds, each kind's M and W are computed once, the offsets
+    W u of all pieces of a kind are one matrix product over their stacked inputs, and the
+    maps are then chained with one small product per piece; the outputs inside the
+    stretches follow per system in lifted form. A pulse train switched in every period thus
+    costs a few microseconds per switch. Blocks of input below 2⁻⁶⁴ of the record's peak are
+    skipped in the lifted products (their share is below rounding).
 
 Noise
     The state covariance before the first boundary is the stationary solution of the
@@ -423,12 +428,10 @@ class _Plan:
         self.starts = np.concatenate([pad, self.bounds], axis=1)  # start of segment m
         self.ends = np.concatenate([self.bounds, -pad], axis=1)  # end of segment m
         jm = np.floor(self.bounds / dt)  # interval holding each boundary
-        wins = []
-        for m in range(M):
-            lo, hi = jm[:, m].min(), jm[:, m].max()
-            lo, hi = max(lo, 0), min(hi, N - 2)
-            if lo <= hi:
-                wins.append([int(lo), int(hi)])
+        # per boundary, the first and last interval holding it over the trials
+        los = np.maximum(jm.min(axis=0, initial=np.inf), 0).tolist()
+        his = np.minimum(jm.max(axis=0, initial=-np.inf), N - 2).tolist()
+        wins = [[int(lo), int(hi)] for lo, hi in zip(los, his) if lo <= hi]
         wins.sort()
         merged = []
         for w in wins:
@@ -565,7 +568,7 @@ class _Lifted:
         Phi, G0, G1 = foh_step(A, B, dt)
         Bd = np.einsum("kij,kj->ki", Phi, G1) + G0
         Dd = np.einsum("ki,ki->k", *np.broadcast_arrays(C, G1)) + D  # C may be per trial
-        self.Phi, self.G1, self.C, self.Dd, self.Bd = Phi, G1, C, Dd, Bd
+        self.Phi, self.G0, self.G1, self.C, self.Dd, self.Bd = Phi, G0, G1, C, Dd, Bd
         Ks = max(Phi.shape[0], C.shape[0])
         n = A.shape[-1]
         # O[:, p] = C Φ^p and V[:, :, p] = Φ^p B_d for p < L by doubling (log2 L products)
@@ -607,6 +610,16 @@ class _Lifted:
         if P is None:
             P = self._pow[r] = np.linalg.matrix_power(self.Phi_b(self.Ks), r)
         return P
+
+    def krylov(self, P):
+        """(Φ^p G0, Φ^p G1) for p < P as two (P, n) arrays, shared system only (by doubling:
+        log2 P products)."""
+        V = np.stack([self.G0[0], self.G1[0]], axis=1)  # (n, 2p): columns Φ^p G0, Φ^p G1
+        Pw = self.Phi[0]
+        while V.shape[1] < 2 * P:
+            V = np.concatenate([V, Pw @ V], axis=1)
+            Pw = Pw @ Pw
+        return V[:, 0:2 * P:2].T, V[:, 1:2 * P:2].T
 
     @staticmethod
     def apply(M, z):
@@ -721,6 +734,9 @@ def simulate(schedule, u, dt: float, *, x0=None, block: int | None = None,
     uK = np.broadcast_to(u2, (K, N))
     y = np.empty((K, N))
     thr = _ZERO_INPUT * float(np.max(np.abs(u2)))
+    if plan.shared and As.shape[1] == 1:
+        y, x = _simulate_shared(plan, uniq, umap, As, Bs, Cs, Ds, u2, x, L, thr)
+        return (y, x) if return_state else y
 
     # 1. group the stretches by system; everything the input drives is computed per group
     #    in a few large products (the schedule repeats, so the groups are few)
@@ -796,7 +812,6 @@ def simulate(schedule, u, dt: float, *, x0=None, block: int | None = None,
     #    stretch of a shared system, one block of a per-trial system, or one interval that
     #    holds a boundary); the maps are listed first and then chained in one tight loop that
     #    records the state before each map, and everything else is done in batch afterwards.
-    memo = {}
     Ms, cs, after = [], [], []  # after: what the recorded state before map i is used for
     eye = np.eye(n)[None]
     for piece, rec in zip(plan.pieces, recs):
@@ -825,7 +840,7 @@ def simulate(schedule, u, dt: float, *, x0=None, block: int | None = None,
         else:
             _, a, b = piece
             for j in range(a, b):  # the few intervals that hold a boundary
-                m_lo, P, q0, q1 = _window_step(plan, j, As, Bs, umap, rows, dt, memo)
+                m_lo, P, q0, q1 = _window_step(plan, j, As, Bs, umap, rows, dt)
                 Ms.append(P)
                 cs.append(q0 * uK[:, j:j + 1] + q1 * uK[:, j + 1:j + 2])
                 after.append(("sample", m_lo, j))
@@ -873,35 +888,186 @@ def simulate(schedule, u, dt: float, *, x0=None, block: int | None = None,
     return (y, x.copy()) if return_state else y
 
 
-def _window_step(plan, j, As, Bs, umap, rows, dt, memo):
+def _ranges(starts, lengths):
+    """Concatenated ranges [s, s + l) for every (s, l), without a Python loop."""
+    starts = np.asarray(starts, dtype=np.intp)
+    lengths = np.asarray(lengths, dtype=np.intp)
+    first = np.cumsum(lengths) - lengths
+    return np.arange(int(lengths.sum())) + np.repeat(starts - first, lengths)
+
+
+def _composite_step(As, Bs, subs, dt):
+    """(P, q0, q1) over one sample interval made of exact sub-steps ``subs`` = ((system,
+    start, end), ...) with start and end in units of dt: x(dt) = P x(0) + q0 u(0) + q1 u(dt)."""
+    n = As.shape[-1]
+    P = np.eye(n)
+    q0 = np.zeros(n)
+    q1 = np.zeros(n)
+    for um, wa, wb in subs:
+        Phi, G0, G1 = foh_step(As[um, 0], Bs[um, 0], (wb - wa) * dt)
+        P = Phi @ P
+        q0 = Phi @ q0 + G0 * (1 - wa) + G1 * (1 - wb)
+        q1 = Phi @ q1 + G0 * wa + G1 * wb
+    return P, q0, q1
+
+
+def _simulate_shared(plan, uniq, umap, As, Bs, Cs, Ds, u2, x, L, thr):
+    """:func:`simulate` when every trial shares the systems and the boundaries.
+
+    Each piece of the record (a stretch of one system, or a sample interval that holds
+    boundaries) is an affine map ``x_end = M x_start + W u[start:end + 1]``. Pieces of one
+    kind (same system, length, sub-sample offsets) share M and W, so a periodic schedule
+    needs a few kinds: the offsets of all pieces of a kind are one product over their stacked
+    inputs, and the sequential part is one small product per piece. The outputs inside the
+    stretches then come per system in lifted form, vectorized over the stretches.
+
+    The sub-step edges of a boundary interval are taken to 1e-9 of dt, which absorbs the
+    rounding of instants computed as k·dt (relative 1e-16 of t, i.e. up to ~1e-11 of dt at
+    k ~ 1e5) so that equal intervals are recognised, and moves a switch by at most
+    5e-10·dt (an output change below 1e-9 of the peak).
+
+    Returns (y, x_end) with shapes (K, N), (K, n).
+    """
+    N, dt, K = plan.N, plan.dt, plan.K
+    Ku, n = u2.shape[0], x.shape[1]
+    um_of = umap.tolist()
+    kinds, kdef = {}, []  # kind key -> index; per kind its key
+    pa, pk = [], []  # per piece: first sample, kind (-1: boundary interval, set below)
+    st = []  # per stretch: (piece, a, b, system)
+    wpos, wj = [], []  # per boundary interval: piece, sample interval
+    for piece in plan.pieces:
+        if piece[0] == "stretch":
+            _, a, b, m = piece
+            um = um_of[m]
+            key = ("s", um, (b if b < N else N - 1) - a)  # the carried state is at b (or N−1)
+            k = kinds.setdefault(key, len(kinds))
+            if k == len(kdef):
+                kdef.append(key)
+            st.append((len(pk), a, b, um))
+            pa.append(a)
+            pk.append(k)
+        else:
+            for j in range(piece[1], piece[2]):
+                wpos.append(len(pk))
+                wj.append(j)
+                pa.append(j)
+                pk.append(-1)
+    pk = np.array(pk)
+    pa = np.array(pa)
+    # boundary intervals: the segment at the start (m_lo) and the boundaries inside
+    bl = np.asarray(plan.blist, dtype=float)
+    J = np.array(wj, dtype=float)
+    t0 = J * dt
+    mlo = np.searchsorted(bl, t0, side="right")  # boundaries at or before t0 are passed
+    mhi = np.searchsorted(bl, t0 + dt, side="left")
+    wkey = [None] * len(wj)
+    one = np.flatnonzero(mhi - mlo <= 1)  # the common case, found without a Python loop
+    if one.size:
+        inside = mhi[one] > mlo[one]
+        mnext = np.minimum(mlo[one] + 1, len(bl))
+        f = np.where(inside, np.round(np.clip(bl[np.minimum(mlo[one], len(bl) - 1)] - t0[one],
+                                              0.0, dt) / dt, 9), 1.0)
+        rowsk = np.column_stack([umap[mlo[one]], np.where(inside, umap[mnext], umap[mlo[one]]), f])
+        ur, inv = np.unique(rowsk, axis=0, return_inverse=True)
+        ukeys = [("w", int(u0), tuple(s for s in ((int(u0), 0.0, float(fr)), (int(u1), float(fr), 1.0))
+                                      if s[2] > s[1])) for u0, u1, fr in ur]
+        for i, q in zip(one.tolist(), np.reshape(inv, -1).tolist()):
+            wkey[i] = ukeys[q]
+    for i in np.flatnonzero(mhi - mlo > 1).tolist():  # several boundaries in one interval
+        lo, hi, tt = int(mlo[i]), int(mhi[i]), float(t0[i])
+        edges = [0.0] + [round(min(max(bl[m] - tt, 0.0), dt) / dt, 9) for m in range(lo, hi)] + [1.0]
+        wkey[i] = ("w", um_of[lo], tuple((um_of[m], edges[q], edges[q + 1])
+                                         for q, m in enumerate(range(lo, hi + 1))
+                                         if edges[q + 1] > edges[q]))
+    for i, key in enumerate(wkey):
+        k = kinds.setdefault(key, len(kinds))
+        if k == len(kdef):
+            kdef.append(key)
+        pk[wpos[i]] = k
+
+    # the affine map of every kind: Mᵀ and W (n, length + 1)
+    lifted = {}
+    for key in kdef:
+        if key[0] == "s" and key[1] not in lifted:
+            lifted[key[1]] = _Lifted(uniq[key[1]], dt, L)
+    longest = {}
+    for key in kdef:
+        if key[0] == "s":
+            longest[key[1]] = max(longest.get(key[1], 0), key[2])
+    kry = {um: lifted[um].krylov(max(P, 1)) for um, P in longest.items()}
+    MT, W = [], []
+    for key in kdef:
+        if key[0] == "s":
+            _, um, ln = key
+            V0, V1 = kry[um]
+            w = np.zeros((n, ln + 1))
+            if ln:  # x_e = Φ^ln x_a + Σ_k Φ^(e−1−k) (G0 u_k + G1 u_(k+1))
+                w[:, :ln] += V0[ln - 1::-1].T
+                w[:, 1:] += V1[ln - 1::-1].T
+            MT.append(np.ascontiguousarray(lifted[um].power(ln)[0].T))
+            W.append(w)
+        else:
+            P, q0, q1 = _composite_step(As, Bs, key[2], dt)
+            MT.append(np.ascontiguousarray(P.T))
+            W.append(np.stack([q0, q1], axis=1))
+    # the input-driven offsets of all pieces of a kind in one product
+    c = np.empty((pk.size, Ku, n))
+    for k, w in enumerate(W):
+        sel = np.flatnonzero(pk == k)
+        idx = pa[sel][:, None] + np.arange(w.shape[1])
+        c[sel] = np.swapaxes(u2[:, idx] @ w.T, 0, 1)
+    # the sequential part: one small product per piece
+    X = np.empty((pk.size, K, n))
+    maps = [MT[k] for k in pk.tolist()]
+    for i, M in enumerate(maps):
+        X[i] = x
+        x = x @ M + c[i]
+    y = np.empty((K, N))
+    if wj:  # outputs at the boundary intervals' first samples
+        wp, Jw = np.array(wpos), np.array(wj)
+        um_lo = umap[mlo]
+        y[:, Jw] = (np.einsum("wki,wi->wk", X[wp], Cs[um_lo, 0]) + Ds[um_lo, 0][:, None] * u2[:, Jw].T).T
+    # outputs inside the stretches, per system, in lifted form
+    by_um = {}
+    for rec in st:
+        by_um.setdefault(rec[3], []).append(rec)
+    for um, recs in by_um.items():
+        lf = lifted[um]
+        pos, a, b, _ = (np.array(v) for v in zip(*recs))
+        ns = b - a
+        nbs = -(-ns // L)
+        offs = np.cumsum(nbs) - nbs
+        NB = int(nbs.sum())
+        samp = _ranges(a, ns)
+        flat = _ranges(offs * L, ns)
+        U = np.zeros((Ku, NB * L))
+        U[:, flat] = u2[:, samp]
+        U = U.reshape(Ku, NB, L)
+        act = np.flatnonzero(np.any(np.abs(U) > thr, axis=(0, 2)))  # blocks with input
+        RU = np.zeros((Ku, NB, n))
+        if act.size:
+            RU[:, act] = _times_transpose(U[:, act], lf.R)
+        # block-start states z = x − G1 u, from each stretch's start state
+        cur = np.swapaxes(X[pos], 0, 1) - lf.G1[0] * u2[:, a][..., None]
+        Z = np.empty((K, NB, n))
+        ALT = lf.AL[0].T
+        for bi in range(int(nbs.max())):  # over the blocks of the longest stretch
+            ok = nbs > bi
+            Z[:, offs[ok] + bi] = cur[:, ok]
+            if bi + 1 < nbs.max():
+                cur = cur @ ALT + RU[:, offs + np.minimum(bi, nbs - 1)]
+        Y = Z @ lf.O[0].T
+        if act.size:
+            Y[:, act] += _times_transpose(U[:, act], lf.T)
+        y[:, samp] = Y.reshape(K, NB * L)[:, flat]
+    return y, x
+
+
+def _window_step(plan, j, As, Bs, umap, rows, dt):
     """Composite exact step over sample interval j, which holds one or more boundaries:
     returns (m_lo, P, q0, q1) with x[j+1] = P x[j] + q0 u[j] + q1 u[j+1] and m_lo the segment
-    (per trial) at the interval's start.
-
-    When every trial shares the boundaries and the systems, the step depends only on the
-    systems and the sub-step lengths, so equal intervals (a periodic schedule) reuse it; the
-    sub-step edges are then taken to 1e-9 of dt, which absorbs the rounding of instants
-    computed as k·dt (relative 1e-16 of t, i.e. up to ~1e-11 of dt at k ~ 1e5) and moves a
-    switch by at most 5e-10·dt (an output change below 1e-9 of the peak)."""
+    (per trial) at the interval's start."""
     n = As.shape[-1]
-    if plan.shared and As.shape[1] == 1:
-        m_lo, subs = plan.substeps_shared(j)
-        key = (int(umap[m_lo]), tuple((int(umap[m]), round(sa / dt, 9), round(sb / dt, 9))
-                                      for m, sa, sb in subs))
-        hit = memo.get(key)
-        if hit is None:
-            P = np.eye(n)[None]
-            q0 = np.zeros((1, n))
-            q1 = np.zeros((1, n))
-            for um, wa, wb in key[1]:
-                if wb <= wa:
-                    continue
-                Phi, G0, G1 = foh_step(As[um], Bs[um], (wb - wa) * dt)
-                P = Phi @ P
-                q0 = np.einsum("kij,kj->ki", Phi, q0) + G0 * (1 - wa) + G1 * (1 - wb)
-                q1 = np.einsum("kij,kj->ki", Phi, q1) + G0 * wa + G1 * wb
-            hit = memo[key] = (np.full(plan.K, umap[m_lo]), P, q0, q1)
-        return hit
     m_lo, subs = plan.substeps(j)
     K = plan.K
     P = np.broadcast_to(np.eye(n), (K, n, n))
