@@ -5,6 +5,7 @@ import math
 import numpy as np
 import pytest
 
+import timescale
 from timescale import Pulse, metrics
 
 
@@ -33,6 +34,18 @@ def test_stretching_raises_jitter_snr_by_20log_alpha(alpha):
     x = gaussian()
     gain = metrics.jitter_snr_db(x.dilate(alpha), 1e-12) - metrics.jitter_snr_db(x, 1e-12)
     assert gain == pytest.approx(20 * math.log10(alpha), abs=1e-9)
+
+
+@pytest.mark.parametrize("alpha", [0.5, 2.0, 8.0])
+def test_jitter_snr_gain_through_the_resample_method(alpha):
+    # the same claim through a real scaling path: the resample method's output, re-gridded to
+    # the input's own rate (band-limited), so the gain cannot come from a relabelled time step.
+    # Closed form (derived, as above): a Gaussian of σ·α has SNR = 10·log10(2α²σ²/σ_t²).
+    x = gaussian()
+    y = timescale.stretch(x, "resample", alpha).pulse.row(0).resample(x.rate)
+    got = float(metrics.jitter_snr_db(y, 1e-12))
+    assert got == pytest.approx(10 * math.log10(2 * (alpha * 100e-12) ** 2 / 1e-12 ** 2), abs=1e-3)
+    assert got - metrics.jitter_snr_db(x, 1e-12) == pytest.approx(20 * math.log10(alpha), abs=1e-3)
 
 
 @pytest.mark.parametrize("alpha, out_rate", [(2.0, 30e9), (0.5, 160e9), (3.3, 41e9)])
@@ -76,8 +89,12 @@ def test_achieved_factor_is_rms_duration_ratio():
 
 
 def test_leakage():
+    # DESIGN §6 definition: |y| at the switch instant over the output peak max|y|, per record
     p = Pulse.from_samples(np.r_[np.zeros(10), 0.1, 1.0, 0.5, np.zeros(10)], 1e9)
-    assert metrics.leakage(p, p.t[10]) == pytest.approx(0.1)
+    assert metrics.leakage(p, p.t[10]) == pytest.approx(0.1, rel=1e-12)
+    # magnitudes on both sides: a negative sample at the instant, a negative peak, one per trial
+    q = p.with_values(np.stack([p.values, -2.0 * p.values, np.r_[np.zeros(10), -0.3, -1.5, np.zeros(11)]]))
+    np.testing.assert_allclose(metrics.leakage(q, p.t[10]), [0.1, 0.1, 0.2], rtol=1e-12)
     with pytest.raises(ValueError, match="outside the output record"):
         metrics.leakage(p, 1.0)
 
