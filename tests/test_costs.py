@@ -64,4 +64,13 @@ def test_bad_arguments_name_themselves():
         costs.spiral_inductance(3, 100e-6, 200e-6)
     with pytest.raises(ValueError, match="shape must be one of"):
         costs.spiral_inductance(3, 200e-6, 100e-6, shape="round")
-    assert math.isfinite(costs.bias_current(1e-3, 10.0))
+    with pytest.raises(ValueError, match="gm_over_id"):
+        costs.bias_current(1e-3, 0.0)
+
+
+def test_bias_current_and_transconductor_noise():
+    # I_D = gm/(gm/I_D): 1 mS at gm/I_D = 10 /V needs 100 µA (definition of the gm/I_D ratio)
+    assert costs.bias_current(1e-3, 10.0) == pytest.approx(100e-6, rel=1e-12)
+    # drain-current noise 4kTγ·gm (standard long-channel result): k = 1.380649e-23 J/K (SI exact),
+    # 300 K, γ = 2/3, 1 mS → 1.1045e-23 A²/Hz
+    assert costs.gm_noise_density(1e-3, 300.0, 2 / 3) == pytest.approx(1.1045e-23, rel=1e-4)

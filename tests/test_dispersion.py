@@ -246,6 +246,18 @@ def test_touchstone_dc_extrapolation_and_causality():
     assert 0.0 <= c.precursor <= 1.0 and c.causal == (c.precursor <= c.threshold)
 
 
+@pytest.mark.parametrize("delay, causal", [(5e-9, True), (-5e-9, False)])
+def test_causality_check_on_a_known_delay(delay, causal):
+    # H = exp(−(f/5 GHz)²)·exp(−j2πfτ): a Gaussian impulse response centred at τ (Fourier
+    # shift theorem). τ = +5 ns is causal (no energy before t = 0: precursor ~ 0); τ = −5 ns puts
+    # all of it before t = 0 (precursor ~ 1). Grid 10 MHz: a 100 ns window, ±50 ns.
+    f = np.arange(10e6, 20e9, 10e6)
+    line = dsp.SampledLine(f, np.exp(-(f / 5e9) ** 2) * np.exp(-2j * math.pi * f * delay))
+    c = line.causality()
+    assert c.causal is causal
+    assert c.precursor == pytest.approx(0.0 if causal else 1.0, abs=1e-6)
+
+
 def test_touchstone_missing_scikit_rf_message(monkeypatch):
     monkeypatch.setitem(sys.modules, "skrf", None)
     with pytest.raises(ImportError, match="pip install scikit-rf"):
