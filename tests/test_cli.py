@@ -5,6 +5,7 @@ import sys
 
 import xarray as xr
 
+from timescale import available_methods
 from timescale.cli import main
 
 
@@ -20,8 +21,13 @@ def test_demo_writes_a_cube_and_prints_a_table(tmp_path, capsys):
     out = capsys.readouterr().out
     assert "Invented scenario" in out and "nrmse" in out
     ds = xr.load_dataset(path, engine="h5netcdf")
-    assert "resample" in ds["method"].values
+    # every installed method runs in the demo (issue 2: "through every installed method")
+    assert sorted(ds["method"].values) == sorted(available_methods())
     assert set(ds["status"].values.ravel()) <= {"ok", "warned", "failed"}
+    # the fidelity reference never fails, and every method appears as a row of the table
+    assert (ds["status"].sel({"method": "resample"}).values != "failed").all()
+    for name in available_methods():
+        assert name in out
 
 
 def test_console_script_runs():
@@ -31,4 +37,7 @@ def test_console_script_runs():
 
 def test_bad_input_is_a_clear_error(tmp_path, capsys):
     assert main(["demo", "-o", str(tmp_path / "missing-folder" / "x.nc")]) == 2
-    assert "does not exist" in capsys.readouterr().err
+    captured = capsys.readouterr()
+    assert "does not exist" in captured.err and "missing-folder" in captured.err
+    assert "Invented scenario" not in captured.out  # refused before the demo ran, not after
+    assert list(tmp_path.iterdir()) == []  # nothing half-written

@@ -46,6 +46,9 @@ def _cmd_demo(args) -> int:
     from .summary import cell_table
 
     out = Path(args.output)
+    folder = out.parent if str(out.parent) else Path(".")
+    if not folder.is_dir():  # refuse before the run, not after it
+        raise ValueError(f"folder {str(folder)!r} for --output does not exist")
     print(DESCRIPTION)
     print()
     with warnings.catch_warnings():
