@@ -156,6 +156,15 @@ def _coarse_latency(S, df, d_lo, span, oversample=8):
     return d, step
 
 
+def _best_latency(y: Pulse, x: Pulse, factor: float, orientation: int):
+    """Latency maximising |⟨y, r_d⟩| for every record of `y`, with the cross-spectrum it came
+    from: ``(S of shape (records, m), df, d of shape (records,))``."""
+    S, df, span = _cross_spectrum(y, x, factor, orientation)
+    S = S.reshape(-1, S.shape[-1])
+    d0, step = _coarse_latency(S, df, y.t0 - reference(x, factor, orientation).t_end, span)
+    return S, df, np.array([_refine_latency(S[i], df, d0[i], step) for i in range(S.shape[0])])
+
+
 def fit_reference(y: Pulse, x: Pulse, factor: float, orientation: int = 1) -> Fit:
     """Fit g·x((t − d)/α) to every record of `y` (least squares, continuous d).
 
@@ -177,14 +186,11 @@ def fit_reference(y: Pulse, x: Pulse, factor: float, orientation: int = 1) -> Fi
     a = _checks.positive("factor", factor)
     x = x.row(0)
     ref = reference(x, a, orientation)
-    S, df, span = _cross_spectrum(y, x, a, orientation)
-    d_lo = y.t0 - ref.t_end
-    S2 = S.reshape(-1, S.shape[-1])
-    d0, step = _coarse_latency(S2, df, d_lo, span)
+    _, _, lat = _best_latency(y, x, a, orientation)
     ys = y.values.reshape(-1, y.n)
     out = np.empty((4, ys.shape[0]))
-    for i in range(ys.shape[0]):  # one scalar optimisation per trial
-        d = _refine_latency(S2[i], df, d0[i], step)
+    for i in range(ys.shape[0]):  # one residual per trial
+        d = float(lat[i])
         # time-domain residual on y's own grid (no cancellation for near-perfect outputs)
         need_before = max(0.0, ref.t0 + d - y.t0)
         need_after = max(0.0, y.t_end - (ref.t_end + d))
@@ -243,11 +249,8 @@ def fitted_factor(y: Pulse, x: Pulse, guess: float, orientation: int = 1, span: 
         e_y = float(_norm2(yi))
 
         def neg_rho(a):
-            S, df, sp = _cross_spectrum(yi, x, a, orientation)
-            ref_t_end = reference(x, a, orientation).t_end
-            d0, step = _coarse_latency(S[None], df, yi.t0 - ref_t_end, sp)
-            d = _refine_latency(S, df, d0[0], step)
-            return -abs(_corr_at(S, df, d)) / math.sqrt(e_y * a * e_x)
+            S, df, d = _best_latency(yi, x, a, orientation)
+            return -abs(_corr_at(S[0], df, d[0])) / math.sqrt(e_y * a * e_x)
 
         res = optimize.minimize_scalar(neg_rho, bounds=(g / span, g * span), method="bounded",
                                        options={"xatol": g * 1e-7})

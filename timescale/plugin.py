@@ -36,7 +36,6 @@ from __future__ import annotations
 import abc
 import dataclasses
 import math
-import typing
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any, ClassVar
@@ -482,6 +481,3 @@ def _jsonable(obj):
         return obj
     return repr(obj)
 
-
-# typing helper for plugin authors who annotate their Params
-ParamsT = typing.TypeVar("ParamsT")

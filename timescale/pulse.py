@@ -395,24 +395,22 @@ class Pulse:
         This is the one-sided extent from DC a sampler or a baseband channel must pass; for a
         band-pass pulse see :meth:`occupied_band`.
         """
-        frac = _checks.fraction("fraction", fraction)
-        f, p = self._power_spectrum()
-        cum = np.cumsum(p, axis=-1)
-        cum = cum / _nonzero(cum[..., -1:])
-        idx = np.apply_along_axis(lambda c: np.searchsorted(c, frac), -1, cum)
-        return _scalar(_interp_edge(f, cum, idx, frac))
+        return self._energy_quantiles(_checks.fraction("fraction", fraction))[0]
 
     def occupied_band(self, fraction=0.99):
         """Lower and upper limits (Hz) of the one-sided band with (1 − fraction)/2 of the
         energy below the lower and above the upper limit (ITU-R SM.328), for band-pass pulses."""
         frac = _checks.fraction("fraction", fraction)
+        return self._energy_quantiles((1 - frac) / 2, 1 - (1 - frac) / 2)
+
+    def _energy_quantiles(self, *qs):
+        """Frequencies (Hz) below which the fractions `qs` of the one-sided energy lie."""
         f, p = self._power_spectrum()
         cum = np.cumsum(p, axis=-1)
         cum = cum / _nonzero(cum[..., -1:])
-        lo_q, hi_q = (1 - frac) / 2, 1 - (1 - frac) / 2
-        lo = np.apply_along_axis(lambda c: np.searchsorted(c, lo_q), -1, cum)
-        hi = np.apply_along_axis(lambda c: np.searchsorted(c, hi_q), -1, cum)
-        return _scalar(_interp_edge(f, cum, lo, lo_q)), _scalar(_interp_edge(f, cum, hi, hi_q))
+        return tuple(
+            _scalar(_interp_edge(f, cum, np.apply_along_axis(lambda c: np.searchsorted(c, q), -1, cum), q))
+            for q in qs)
 
     def fwhm(self) -> np.ndarray | float:
         """Full width at half maximum of |x| around its highest peak (linear interpolation of the
