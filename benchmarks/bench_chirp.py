@@ -20,8 +20,8 @@ import numpy as np
 from scipy.signal import fftconvolve
 
 import timescale
-from timescale import dispersion as dsp
-from timescale.pulse import Pulse
+from timescale.numerics import dispersion as dsp
+from timescale.data.pulse import Pulse
 
 
 def plain_chain(env, rate, t0, gdd_chirp, gdd_line):

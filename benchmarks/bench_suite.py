@@ -31,10 +31,10 @@ import numpy as np
 import xarray as xr
 
 import timescale as ts
-from timescale import execute
+from timescale.runner import execute
 from timescale.plugin import Bill, Design, Method, Simulation, param
-from timescale.run import run_cell
-from timescale.suite import Suite
+from timescale.runner.cells import run_cell
+from timescale.runner.suite import Suite
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -74,8 +74,8 @@ def _timed(label, suite, tmp, **kw):
 def _warm_worker(path):
     """Import and run a few cells once, so a freshly spawned Dask worker is timed warm (forked
     local processes inherit the parent's imports)."""
-    from timescale.run import run_cell
-    from timescale.suite import Suite as _Suite
+    from timescale.runner.cells import run_cell
+    from timescale.runner.suite import Suite as _Suite
 
     plan = _Suite.from_toml(path).plan()
     for i in range(3):

@@ -26,7 +26,7 @@ os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
 import numpy as np  # noqa: E402
 from scipy import signal as ss  # noqa: E402
 
-from timescale import lti  # noqa: E402
+from timescale.numerics import lti  # noqa: E402
 from timescale_builtins.switched_bandwidth import prototypes  # noqa: E402
 
 

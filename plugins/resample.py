@@ -21,7 +21,8 @@ import numpy as np
 import scipy.fft as sfft
 from scipy import signal as ss
 
-from timescale import costs
+from timescale.data.signal import derivative, resample_to
+from timescale.numerics import costs
 from timescale.plugin import (
     Bill,
     BillItem,
@@ -35,7 +36,6 @@ from timescale.plugin import (
     hookimpl,
     param,
 )
-from timescale.signal import derivative, resample_to
 
 __all__ = ["Resample", "ResampleParams", "ResampleDesign", "timescale_methods"]
 

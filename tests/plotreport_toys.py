@@ -12,9 +12,9 @@ import numpy as np
 from scipy import signal as ss
 
 import timescale
-from timescale.cube import Axis, assemble
+from timescale.runner.cube import Axis, assemble
 from timescale.plugin import Bill, BillItem, Design, Method, Simulation, param
-from timescale.run import CellSpec, run_cell
+from timescale.runner.cells import CellSpec, run_cell
 
 
 @dataclass(frozen=True)

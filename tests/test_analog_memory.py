@@ -12,7 +12,7 @@ import pytest
 from scipy import integrate, signal as ss, special
 
 import timescale as ts
-from timescale import costs
+from timescale.numerics import costs
 
 try:
     import timescale_analog_memory  # noqa: F401

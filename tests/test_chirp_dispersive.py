@@ -8,10 +8,10 @@ import numpy as np
 import pytest
 
 import timescale
-from timescale import dispersion as dsp
+from timescale.numerics import dispersion as dsp
 from timescale import metrics
-from timescale.errors import DesignWarning
-from timescale.pulse import Pulse
+from timescale.data.errors import DesignWarning
+from timescale.data.pulse import Pulse
 from timescale.testing import check_method
 from timescale_builtins.chirp_dispersive import ChirpDispersive
 

@@ -6,7 +6,7 @@ import sys
 import xarray as xr
 
 from timescale import available_methods
-from timescale.cli import main
+from timescale.interface.cli import main
 
 
 def test_methods_lists_resample_with_units(capsys):
@@ -31,7 +31,7 @@ def test_demo_writes_a_cube_and_prints_a_table(tmp_path, capsys):
 
 
 def test_console_script_runs():
-    r = subprocess.run([sys.executable, "-m", "timescale.cli", "methods"], capture_output=True, text=True)
+    r = subprocess.run([sys.executable, "-m", "timescale", "methods"], capture_output=True, text=True)
     assert r.returncode == 0 and "resample" in r.stdout
 
 

@@ -4,7 +4,7 @@ import math
 
 import pytest
 
-from timescale import costs
+from timescale.numerics import costs
 
 
 def test_walden_fom_worked_example():

@@ -9,6 +9,7 @@ import xarray as xr
 
 import timescale
 from timescale.plugin import Design, Simulation, param
+from timescale.runner.cube import input_pulses
 
 from toy_methods import Ideal
 
@@ -42,7 +43,7 @@ def test_cube_dims_units_and_failed_cells():
         ds = timescale.compare(pulses(), ["resample", "test-fragile"], [0.5, 2.0, 8.0], seed=1)
     assert dict(ds.sizes) == {"method": 2, "pulse": 2, "factor": 3, "input_sample": 120}
     # the inputs travel with the cube, so a figure can re-run any cell from the file alone
-    stored = timescale.cube.input_pulses(ds)
+    stored = input_pulses(ds)
     np.testing.assert_array_equal(stored["m"].values, pulses()["m"].values)
     assert stored["m"].rate == pulses()["m"].rate
     for name in ("nrmse", "correlation", "achieved_factor", "fitted_factor", "sndr_db", "latency",

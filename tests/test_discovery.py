@@ -20,8 +20,8 @@ import warnings
 import pytest
 
 import timescale
-from timescale import registry
-from timescale.errors import PluginLoadWarning
+from timescale.contract import registry
+from timescale.data.errors import PluginLoadWarning
 from toy_methods import Ideal
 
 EXAMPLE = "analog-memory"
@@ -48,7 +48,7 @@ def _cli(*args, env_extra=None):
     env = dict(os.environ)
     env.pop("TIMESCALE_NO_AUTOLOAD", None)
     env.update(env_extra or {})
-    return subprocess.run([sys.executable, "-m", "timescale.cli", *args], capture_output=True,
+    return subprocess.run([sys.executable, "-m", "timescale", *args], capture_output=True,
                           text=True, env=env, timeout=120)
 
 

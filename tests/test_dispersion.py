@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 from scipy import signal as ss
 
-from timescale import dispersion as dsp
+from timescale.numerics import dispersion as dsp
 
 PS = 1e-12
 PS2 = 1e-24
@@ -277,7 +277,7 @@ def test_analytic_signal_of_a_tone_burst():
     # Hilbert pair cos → sin (standard result): the analytic signal of a slowly gated cosine is
     # the gate times e^{jωt}, so the ideal envelope detector returns the gate; checked on a
     # length that is not a fast FFT length (the core pads, then trims)
-    from timescale.signal import analytic
+    from timescale.data.signal import analytic
 
     rate, f0 = 100e9, 10e9
     t = np.arange(5003) / rate

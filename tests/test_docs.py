@@ -24,7 +24,7 @@ from pathlib import Path
 import pytest
 
 import timescale
-from timescale import hookdoc, hookspecs, registry
+from timescale.contract import hookdoc, hookspecs, registry
 
 DOCS = Path(__file__).resolve().parent.parent / "docs"
 SKIP_MARK = re.compile(r"^\s*#\s*docs-test:\s*skip\s*\((?P<reason>[^)]+)\)\s*$")
@@ -126,4 +126,4 @@ def test_every_hook_and_its_exact_signature_is_in_hooks_md():
 def test_hooks_md_is_up_to_date():
     page = (DOCS / "hooks.md").read_text(encoding="utf-8")
     assert page == hookdoc.render(), (
-        "docs/hooks.md is stale: run `python -m timescale.hookdoc > docs/hooks.md`")
+        "docs/hooks.md is stale: run `python -m timescale.contract.hookdoc > docs/hooks.md`")

@@ -14,9 +14,10 @@ import pytest
 import xarray as xr
 
 import timescale as ts
-from timescale.execute import DASK_HINT, run_suite
-from timescale.summary import failure_table, method_table
-from timescale.suite import Suite
+from timescale.runner.executors import DASK_HINT
+from timescale.runner.execute import run_suite
+from timescale.interface.tables import failure_table, method_table
+from timescale.runner.suite import Suite
 
 sys.path.insert(0, str(Path(__file__).parent))
 from suite_methods import Broken, Noisy  # noqa: E402
@@ -174,7 +175,7 @@ def _lines(path):
 
 def _start_and_kill(args, ck, more, sig, env):
     start = _lines(ck)
-    proc = subprocess.Popen([sys.executable, "-m", "timescale.cli", *args], env=env,
+    proc = subprocess.Popen([sys.executable, "-m", "timescale", *args], env=env,
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE)
     deadline = time.monotonic() + 60
     while _lines(ck) < start + more and proc.poll() is None and time.monotonic() < deadline:

@@ -7,7 +7,7 @@ import pytest
 import scipy.linalg as sla
 from scipy import signal as ss
 
-from timescale import lti
+from timescale.numerics import lti
 
 KB = 1.380649e-23  # J/K, SI 2019 exact
 

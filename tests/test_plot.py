@@ -18,7 +18,7 @@ import pytest  # noqa: E402
 from matplotlib.colors import to_hex  # noqa: E402
 
 import timescale  # noqa: E402
-from timescale import plot  # noqa: E402
+from timescale.interface import plot  # noqa: E402
 
 sys.path.insert(0, os.path.dirname(__file__))
 import plotreport_toys as toys  # noqa: E402

@@ -4,8 +4,8 @@ import numpy as np
 import pytest
 
 import timescale
-from timescale import registry
-from timescale.errors import PluginLoadWarning
+from timescale.contract import registry
+from timescale.data.errors import PluginLoadWarning
 from timescale.plugin import hookimpl
 from toy_methods import Ideal
 

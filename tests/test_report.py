@@ -16,8 +16,8 @@ import numpy as np
 import pytest
 
 import timescale
-from timescale import cli
-from timescale.report import cell_summary, findings, write_report
+from timescale.interface import cli
+from timescale.interface.report import cell_summary, findings, write_report
 
 sys.path.insert(0, os.path.dirname(__file__))
 import plotreport_toys as toys  # noqa: E402

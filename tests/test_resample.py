@@ -7,8 +7,9 @@ import pytest
 from scipy import signal as ss
 
 import timescale
-from timescale import costs, metrics
-from timescale.errors import DesignWarning, SamplingWarning
+from timescale import metrics
+from timescale.numerics import costs
+from timescale.data.errors import DesignWarning, SamplingWarning
 from timescale.testing import check_method
 
 SIGMA, CENTER = 100e-12, 0.8e-9

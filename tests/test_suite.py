@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 
 import timescale as ts
-from timescale.cli import main
-from timescale.suite import Suite, expand_range, fill_not_applicable
+from timescale.interface.cli import main
+from timescale.runner.suite import Suite, expand_range, fill_not_applicable
 
 sys.path.insert(0, str(Path(__file__).parent))
 from suite_methods import Noisy  # noqa: E402

@@ -7,8 +7,8 @@ import pytest
 from scipy import signal as ss
 
 import timescale as ts
-from timescale import costs, lti
-from timescale.technology import DEFAULT_TECHNOLOGY
+from timescale.numerics import costs, lti
+from timescale.data.technology import DEFAULT_TECHNOLOGY
 from timescale.testing import check_method
 from timescale_builtins.switched_bandwidth import SwitchedBandwidth, prototypes
 

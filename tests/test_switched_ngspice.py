@@ -6,7 +6,7 @@ import subprocess
 import numpy as np
 import pytest
 
-from timescale import lti
+from timescale.numerics import lti
 from timescale_builtins.switched_bandwidth import prototypes
 
 pytestmark = pytest.mark.ngspice

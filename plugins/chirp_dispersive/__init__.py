@@ -14,12 +14,12 @@ Two arrangements (``arrangement=``):
     sign) is time-reversed and recorded as ``orientation = −1``; ``image="upright"`` uses
     lines of opposite sign instead.
 
-The numerics (line models, padding, detectors) live in :mod:`timescale.dispersion`.
+The numerics (line models, padding, detectors) live in :mod:`timescale.numerics.dispersion`.
 """
 
 from timescale.plugin import hookimpl
 
-from .method import ChirpDispersive, ChirpDesign, ChirpParams
+from .method import ChirpDesign, ChirpDispersive, ChirpParams
 
 __all__ = ["ChirpDispersive", "ChirpDesign", "ChirpParams", "timescale_methods"]
 

@@ -10,8 +10,9 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.signal.windows import tukey
 
-from timescale import costs
-from timescale import dispersion as dsp
+from timescale.data.signal import analytic, resample_to
+from timescale.numerics import costs
+from timescale.numerics import dispersion as dsp
 from timescale.plugin import (
     Bill,
     BillItem,
@@ -23,7 +24,6 @@ from timescale.plugin import (
     Simulation,
     param,
 )
-from timescale.signal import analytic, resample_to
 
 __all__ = ["ChirpDispersive", "ChirpParams", "ChirpDesign"]
 
@@ -512,7 +512,7 @@ class ChirpDispersive(Method):
             out = pulse.with_values(np.broadcast_to(pulse.values, (trials, pulse.n)).copy(),
                                     name=f"{pulse.name} (bypass)")
             return Simulation(pulse=out, path="bypass (factor 1)", metrics=self._metrics(design))
-        from timescale.technology import DEFAULT_TECHNOLOGY
+        from timescale.data.technology import DEFAULT_TECHNOLOGY
 
         tech = technology or DEFAULT_TECHNOLOGY
         lines = self._lines(design, params, tech)

@@ -13,7 +13,7 @@ so short pulses need very high orders) and a constant-k LC ladder. Realizations:
 inductor a gyrator-C, L = C/(gm1·gm2)) and passive LC (bill only differs; the simulation is the
 ideal network, gm non-idealities do not apply).
 
-Simulation uses the exact piecewise-LTI kernel :mod:`timescale.lti`. With ``gm_limit`` set, the
+Simulation uses the exact piecewise-LTI kernel :mod:`timescale.numerics.lti`. With ``gm_limit`` set, the
 soft-limited path (RK4) is used: it is one to two orders of magnitude slower.
 """
 
@@ -25,7 +25,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from timescale import costs, lti
+from timescale.data.signal import resample_to
+from timescale.numerics import costs, lti
 from timescale.plugin import (
     Bill,
     BillItem,
@@ -39,7 +40,6 @@ from timescale.plugin import (
     hookimpl,
     param,
 )
-from timescale.signal import resample_to
 
 from . import prototypes
 from .prototypes import Prototype, build
@@ -462,7 +462,7 @@ class SwitchedBandwidth(Method):
     # -------------------------------------------------------------------------------------
     def simulate(self, pulse, design: SwitchedDesign, params: SwitchedParams, rng, trials=1,
                  technology=None):
-        from timescale.technology import DEFAULT_TECHNOLOGY
+        from timescale.data.technology import DEFAULT_TECHNOLOGY
 
         tech = technology or DEFAULT_TECHNOLOGY
         a = design.factor

@@ -19,7 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import signal as ss
 
-from timescale.lti import StateSpace
+from timescale.numerics.lti import StateSpace
 
 __all__ = ["Prototype", "bessel", "pade", "ladder", "build", "pade_group_delay", "summed_cascade",
            "summer_response"]
@@ -346,7 +346,7 @@ def ngspice_netlist(system: StateSpace, node_c, t_switch: float, factor: float, 
     The input is the closed-form behavioural expression `source` (a function of ``time``);
     the run starts from zero state (``uic``) and writes the node voltages with one time
     column to `out_file`. With `limit` = V_L > 0 every transconductor input v is soft-limited
-    to V_L·tanh(v/V_L) (gm compression, as :func:`timescale.lti.simulate_nonlinear`).
+    to V_L·tanh(v/V_L) (gm compression, as :func:`timescale.numerics.lti.simulate_nonlinear`).
     `roles` (one name per node) only labels the nodes in comments.
     """
     def vin(name):

@@ -44,7 +44,7 @@ import numpy as np
 import scipy.fft as sfft
 from scipy import signal as ss
 
-from timescale import costs
+from timescale.numerics import costs
 from timescale.plugin import (
     Bill,
     BillItem,
@@ -57,7 +57,7 @@ from timescale.plugin import (
     Simulation,
     param,
 )
-from timescale.signal import resample_to
+from timescale.data.signal import resample_to
 
 __all__ = ["AnalogMemory", "AnalogMemoryParams", "AnalogMemoryDesign", "sample_band_limited",
            "readout_filter", "LOST_ENERGY_WARN"]
