@@ -74,7 +74,7 @@ def swept_cube(trials=3, seed=7, scales=(0.6, 1.0, 2.0), factors=(0.5, 2.0, 4.0)
     refuses factor 4 (max_factor=3); toy-noisy adds noise that varies by trial."""
     methods = [ToyLowpass(), ToyNoisy()]
     pmap = pulses()
-    axes = [Axis("method", [m.name for m in methods]), Axis("pulse", list(pmap)),
+    axes = [Axis("method_name", [m.name for m in methods]), Axis("pulse", list(pmap)),
             Axis("factor", list(factors)),
             Axis("scale", list(scales), units="", long_name="band limit / output bandwidth")]
     base = {"toy-lowpass": {"max_factor": 3.0}, "toy-noisy": {"noise": 0.02}}

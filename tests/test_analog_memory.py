@@ -173,7 +173,7 @@ def test_truncated_record_is_reported_honestly():
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ts.DesignWarning)
             cube = ts.compare(x, [METHOD], [10.0], cells=cells, write_rate=fw)
-        cell = cube.isel(method=0, pulse=0, factor=0)
+        cell = cube.isel(method_name=0, pulse=0, factor=0)
         f = float(cell.record_energy_fraction)
         assert str(cell.status.values) == ("warned" if 1 - f > 1e-4 else "ok")
         assert float(cell.nrmse) <= 1.05 * math.sqrt((1 - f) / f) + 1e-6

@@ -22,10 +22,10 @@ def test_demo_writes_a_cube_and_prints_a_table(tmp_path, capsys):
     assert "Invented scenario" in out and "nrmse" in out
     ds = xr.load_dataset(path, engine="h5netcdf")
     # every installed method runs in the demo (issue 2: "through every installed method")
-    assert sorted(ds["method"].values) == sorted(available_methods())
+    assert sorted(ds["method_name"].values) == sorted(available_methods())
     assert set(ds["status"].values.ravel()) <= {"ok", "warned", "failed"}
     # the fidelity reference never fails, and every method appears as a row of the table
-    assert (ds["status"].sel({"method": "resample"}).values != "failed").all()
+    assert (ds["status"].sel({"method_name": "resample"}).values != "failed").all()
     for name in available_methods():
         assert name in out
 

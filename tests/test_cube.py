@@ -41,7 +41,7 @@ def pulses():
 def test_cube_dims_units_and_failed_cells():
     with timescale.registered(Fragile()):
         ds = timescale.compare(pulses(), ["resample", "test-fragile"], [0.5, 2.0, 8.0], seed=1)
-    assert dict(ds.sizes) == {"method": 2, "pulse": 2, "factor": 3, "input_sample": 120}
+    assert dict(ds.sizes) == {"method_name": 2, "pulse": 2, "factor": 3, "input_sample": 120}
     # the inputs travel with the cube, so a figure can re-run any cell from the file alone
     stored = input_pulses(ds)
     np.testing.assert_array_equal(stored["m"].values, pulses()["m"].values)
@@ -51,19 +51,21 @@ def test_cube_dims_units_and_failed_cells():
                  "jitter_snr_out_db", "area", "power", "energy_per_pulse"):
         assert "units" in ds[name].attrs and ds[name].attrs["long_name"], name
     assert ds["latency"].attrs["units"] == "s"
-    # the dim is called "method", which is also a keyword of xarray's .sel(): select with a dict
-    st = ds["status"].sel({"method": "test-fragile"})
+    # the method dim is "method_name", so keyword selection works (xarray's .sel has its own
+    # "method" keyword, which once swallowed a dim of that name silently)
+    st = ds["status"].sel(method_name="test-fragile")
+    assert st.dims == ("pulse", "factor")
     assert list(st.sel(pulse="g").values) == ["ok", "ok", "failed"]
-    msg = str(ds["message"].sel({"method": "test-fragile", "pulse": "g", "factor": 8.0}).values)
+    msg = str(ds["message"].sel({"method_name": "test-fragile", "pulse": "g", "factor": 8.0}).values)
     assert "beyond what this toy can do" in msg
-    assert np.isnan(ds["nrmse"].sel({"method": "test-fragile", "factor": 8.0})).all()
+    assert np.isnan(ds["nrmse"].sel({"method_name": "test-fragile", "factor": 8.0})).all()
     assert ds.attrs["n_failed"] == 2
-    assert (ds["nrmse"].sel({"method": "resample"}) < 1e-12).all()
+    assert (ds["nrmse"].sel({"method_name": "resample"}) < 1e-12).all()
 
 
 def test_trials_add_a_dim():
     ds = timescale.compare(pulses()["g"], ["resample"], 2.0, trials=3, seed=5, capture=True, jitter=2e-12)
-    assert ds["nrmse"].dims == ("method", "pulse", "factor", "trial")
+    assert ds["nrmse"].dims == ("method_name", "pulse", "factor", "trial")
     vals = ds["nrmse"].values.ravel()
     assert len(set(vals)) == 3  # jitter differs per trial
 
@@ -116,3 +118,15 @@ def test_batched_pulse_is_refused():
     b = g.with_values(np.stack([g.values, g.values]))
     with pytest.raises(ValueError, match="one record"):
         timescale.compare(b, ["resample"], 2.0)
+
+
+def test_a_cube_from_version_0_1_loads_with_the_new_method_dim(tmp_path):
+    # timescale 0.1 named the method dim "method"; such files load with it renamed
+    ds = timescale.compare(Ideal().__class__ and pulses(), ["resample"], [2.0], seed=3)
+    old = ds.rename({"method_name": "method"})
+    path = tmp_path / "old.nc"
+    old.to_netcdf(path, engine="h5netcdf")
+    back = timescale.load_cube(path)
+    assert "method" not in back.dims and back.sizes["method_name"] == 1
+    assert back["method_name"].attrs["long_name"] == "time-scaling method"
+    xr.testing.assert_identical(back.drop_attrs(), ds.drop_attrs())

@@ -121,9 +121,9 @@ def test_suite_runs_the_example_by_name(tmp_path):
     res = _cli("run", str(suite), "-o", str(out), "--no-progress")  # a fresh process
     assert res.returncode == 0, res.stdout + res.stderr
     cube = timescale.load_cube(out)
-    status = cube["status"].sel({"method": EXAMPLE}).values.ravel()
+    status = cube["status"].sel({"method_name": EXAMPLE}).values.ravel()
     assert list(status) == ["ok", "ok"]
-    fitted = cube["fitted_factor"].sel({"method": EXAMPLE}).values.ravel()
+    fitted = cube["fitted_factor"].sel({"method_name": EXAMPLE}).values.ravel()
     assert fitted == pytest.approx([2.0, 100.0], rel=1e-3)
     assert "record_energy_fraction" in cube  # the method's own metric reached the cube
 
@@ -132,7 +132,7 @@ def test_compare_by_default_includes_the_example():
     _require_example()
     x = timescale.Pulse.gaussian(sigma=100e-12, center=0.6e-9, duration=3e-9, rate=40e9)
     cube = timescale.compare(x, factors=[4.0], seed=0)
-    assert EXAMPLE in list(cube["method"].values)
+    assert EXAMPLE in list(cube["method_name"].values)
 
 
 # ---- hand-built distributions on sys.path --------------------------------------------------------

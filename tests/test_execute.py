@@ -60,8 +60,8 @@ def test_monte_carlo_trials_and_identical_cells_differ(noisy):
     s = Suite(pulses=[GAUSS, dict(GAUSS, name="g-twin")], methods=["suite-noisy"], factors=[2.0],
               params={"noise": 1e-2}, trials=4, seed=5)
     cube = run_suite(s, progress=False).cube
-    a = cube["nrmse"].sel({"method": "suite-noisy", "pulse": "g", "factor": 2.0}).values
-    b = cube["nrmse"].sel({"method": "suite-noisy", "pulse": "g-twin", "factor": 2.0}).values
+    a = cube["nrmse"].sel({"method_name": "suite-noisy", "pulse": "g", "factor": 2.0}).values
+    b = cube["nrmse"].sel({"method_name": "suite-noisy", "pulse": "g-twin", "factor": 2.0}).values
     assert len(set(a.tolist())) == 4  # trials differ
     assert not np.any(a == b)  # identical cells differ
     xr.testing.assert_identical(cube, run_suite(s, progress=False).cube)
@@ -88,15 +88,15 @@ def test_broken_method_fails_only_its_cells(noisy):
         res = run_suite(s, progress=False)
     cube = res.cube
     st = cube["status"].sel({"pulse": "g"})
-    assert (st.sel({"method": "resample", "mode": "ok"}).values == "ok").all()
-    assert (st.sel({"method": "resample", "mode": "nan"}).values == "n/a").all()
-    broken = st.sel({"method": "suite-broken"})
+    assert (st.sel({"method_name": "resample", "mode": "ok"}).values == "ok").all()
+    assert (st.sel({"method_name": "resample", "mode": "nan"}).values == "n/a").all()
+    broken = st.sel({"method_name": "suite-broken"})
     assert list(broken.sel(mode="ok").values) == ["ok", "ok", "failed"]  # factor 4 > 3 raises
     assert list(broken.sel(mode="nan").values) == ["failed"] * 3
     assert cube.attrs["n_failed"] == 4
-    assert np.isnan(cube["nrmse"].sel({"method": "suite-broken", "mode": "nan"}).values).all()
-    assert np.isfinite(cube["nrmse"].sel({"method": "resample", "mode": "ok"}).values).all()
-    msgs = cube["message"].sel({"method": "suite-broken", "pulse": "g"}).values
+    assert np.isnan(cube["nrmse"].sel({"method_name": "suite-broken", "mode": "nan"}).values).all()
+    assert np.isfinite(cube["nrmse"].sel({"method_name": "resample", "mode": "ok"}).values).all()
+    msgs = cube["message"].sel({"method_name": "suite-broken", "pulse": "g"}).values
     assert "cannot reach the factor" in msgs[2, 0] and "non-finite" in msgs[0, 1]
     # factor 4 fails in design before the NaN output could appear, whatever the mode
     assert res.failures == {"ValueError: this design cannot reach the factor": 2,
@@ -216,7 +216,7 @@ def test_kept_waveforms_go_to_a_companion_file(tmp_path, noisy):
     xr.testing.assert_identical(wf, res.waveforms)
     xr.testing.assert_identical(wf, run_suite(s, workers=2, progress=False).waveforms)
     # the kept record is the method's output: x(t/α) on a grid of rate/α (plus the cell's noise)
-    one = wf["value"].sel({"method": "suite-noisy", "pulse": "g", "factor": 2.0}).values
-    t = wf["time"].sel({"method": "suite-noisy", "pulse": "g", "factor": 2.0}).values
+    one = wf["value"].sel({"method_name": "suite-noisy", "pulse": "g", "factor": 2.0}).values
+    t = wf["time"].sel({"method_name": "suite-noisy", "pulse": "g", "factor": 2.0}).values
     assert one.shape == (2, 50) and np.allclose(np.diff(t), 2.0 / 50e9)
     assert not np.array_equal(one[0], one[1])

@@ -81,7 +81,7 @@ def test_metric_draws_one_line_per_method_with_trial_band(cube):
     expect = cube["nrmse"].sel(pulse="gaussian").min("scale").median("trial")
     for m in ("toy-lowpass", "toy-noisy"):
         y = d.lines_of(m)[0].get_ydata()
-        np.testing.assert_allclose(y, expect.sel({"method": m}).values, rtol=1e-12)
+        np.testing.assert_allclose(y, expect.sel({"method_name": m}).values, rtol=1e-12)
     # the noisy toy varies by trial: it has a band; x positions are the factors
     assert "band:toy-noisy" in d.artists
     np.testing.assert_allclose(d.lines_of("toy-noisy")[0].get_xdata(), [0.5, 2.0, 4.0])
@@ -94,7 +94,7 @@ def test_metric_axis_in_display_units_and_failed_cells_marked(cube):
     d = plot.plot_metric(cube, "area", "factor")
     assert d.axes[0].get_ylabel() == "silicon area (mm²)"
     y = d.lines_of("toy-noisy")[0].get_ydata()
-    expect = cube["area"].sel({"method": "toy-noisy"}).median(["pulse", "scale"]).median("trial") * 1e6
+    expect = cube["area"].sel({"method_name": "toy-noisy"}).median(["pulse", "scale"]).median("trial") * 1e6
     np.testing.assert_allclose(y, expect.values, rtol=1e-12)
     # toy-lowpass refuses factor 4 (max_factor 3): one failed marker, at factor 4
     fx = d.artists["failed:toy-lowpass"][0]
@@ -107,7 +107,7 @@ def test_metric_over_a_swept_setting_and_a_floor(cube):
     assert d.axes[0].get_xlabel() == "band limit / output bandwidth"
     y = d.lines_of("toy-lowpass")[0].get_ydata()
     assert np.all(y >= 0.05)
-    raw = cube["nrmse"].sel({"method": "toy-lowpass", "factor": 2.0}).median("pulse").median("trial")
+    raw = cube["nrmse"].sel({"method_name": "toy-lowpass", "factor": 2.0}).median("pulse").median("trial")
     assert np.any(raw.values < 0.05)  # so the floor did something
     assert "floor:toy-lowpass" in d.artists
 
@@ -141,7 +141,7 @@ def test_tradeoff_front_points_are_non_dominated(cube):
         for f, c in pts:  # every other design is dominated by (or equal to) a front design
             assert np.any((front[:, 0] <= f) & (front[:, 1] <= c))
         # one point per design: cells with a value (median over trials)
-        n = int(np.isfinite(cube["nrmse"].sel({"method": m}).median("trial")).sum())
+        n = int(np.isfinite(cube["nrmse"].sel({"method_name": m}).median("trial")).sum())
         assert len(pts) == n
         assert len(d.lines_of(f"front:{m}")) == 1
 
@@ -162,7 +162,7 @@ def test_map_one_panel_per_method_shared_scale_and_failed_cells(cube):
     meshes = [d.artists[m][0] for m in ("toy-lowpass", "toy-noisy")]
     assert meshes[0].norm is meshes[1].norm or (meshes[0].norm.vmin, meshes[0].norm.vmax) == \
         (meshes[1].norm.vmin, meshes[1].norm.vmax)
-    expect = cube["nrmse"].sel({"method": "toy-noisy"}).median(["pulse", "trial"]).transpose("scale", "factor")
+    expect = cube["nrmse"].sel({"method_name": "toy-noisy"}).median(["pulse", "trial"]).transpose("scale", "factor")
     np.testing.assert_allclose(d.data["toy-noisy"], expect.values, rtol=1e-12)
     # toy-lowpass fails at factor 4 for both scales: two cells say so
     texts = [t.get_text() for t in d.artists["failed:toy-lowpass"]]

@@ -78,7 +78,7 @@ def test_findings_match_an_independent_reduction(cube):
     # served: for every pulse some scale meets the target (median over trials)
     ok = (cube["nrmse"].median("trial") <= target).any("scale").all("pulse")
     for fd in findings(cube, target=target):
-        expect = [float(f) for f in cube["factor"].values if bool(ok.sel({"method": fd.method, "factor": f}))]
+        expect = [float(f) for f in cube["factor"].values if bool(ok.sel({"method_name": fd.method, "factor": f}))]
         assert list(fd.served) == expect
     fd = {f.method: f for f in findings(cube, target=target)}
     # toy-lowpass refuses factor 4 (max_factor 3): never served there, and the text says why
@@ -91,7 +91,7 @@ def test_findings_quote_the_cheapest_qualifying_design(cube):
     fd = {f.method: f for f in findings(cube, target=0.1)}["toy-lowpass"]
     assert fd.served  # the toy meets 0.1 at some factor with scale 2
     for f in fd.served:
-        med = cube.median("trial").sel({"method": "toy-lowpass", "factor": f})
+        med = cube.median("trial").sel({"method_name": "toy-lowpass", "factor": f})
         qual = med["nrmse"] <= 0.1
         cheapest = float(med["area"].where(qual).min("scale").max("pulse"))
         assert fd.cheapest[f]["area"] == pytest.approx(cheapest, rel=1e-12)
@@ -109,7 +109,7 @@ def test_cell_summary_orders_best_median_worst(cube):
     assert [r.rank for r in rows] == ["best", "median", "worst"]
     v = [r.values["nrmse"] for r in rows]
     assert v[0] <= v[1] <= v[2]
-    assert v[0] == pytest.approx(float(cube["nrmse"].sel({"method": "toy-noisy"}).median("trial").min()))
+    assert v[0] == pytest.approx(float(cube["nrmse"].sel({"method_name": "toy-noisy"}).median("trial").min()))
     assert failures == []
     rows, failures = cell_summary(cube, "toy-lowpass")
     assert len(failures) == 1 and failures[0][1] == 4 and "max_factor" in failures[0][0]
@@ -232,7 +232,7 @@ def test_cli_demo_writes_the_report(tmp_path, capsys):
     p = _parse(page)
     text = " ".join(p.text)
     assert "Invented scenario" in text
-    methods = [str(m) for m in timescale.load_cube(nc)["method"].values]
+    methods = [str(m) for m in timescale.load_cube(nc)["method_name"].values]
     for m in methods:
         assert m in text
     assert (folder / "waveforms.png").exists()  # the demo's pulses are known: waveforms re-run

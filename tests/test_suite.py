@@ -68,7 +68,7 @@ def test_suite_from_toml_layout(tmp_path):
     plan = s.plan()
     assert plan.shape == (1, 1, 2, 3)
     assert plan.n_cells == 6 == s.n_cells()
-    assert [a.name for a in plan.axes()] == ["method", "pulse", "factor", "bits"]
+    assert [a.name for a in plan.axes()] == ["method_name", "pulse", "factor", "bits"]
     assert plan.axes()[3].units == "bit"
     cell = plan.cell(5, entropy=1)  # C order: last factor, last bits
     assert cell.factor == 2.0 and cell.params == {"capture": True, "bits": 10}
@@ -162,16 +162,16 @@ def test_not_applicable_positions_are_nan_with_status_and_fill():
         cube = ts.run_suite(s, progress=False).cube
     st = cube["status"].sel(factor=2.0, pulse="g")
     # resample runs once per bits value, at the first noise coordinate only
-    assert list(st.sel({"method": "resample", "noise": 1e-3}).values) == ["ok"] * 3
-    assert list(st.sel({"method": "resample", "noise": 2e-3}).values) == ["n/a"] * 3
-    assert list(st.sel({"method": "suite-noisy", "bits": 6}).values) == ["ok"] * 2
-    assert list(st.sel({"method": "suite-noisy", "bits": 10}).values) == ["n/a"] * 2
-    assert np.isnan(cube["nrmse"].sel({"method": "suite-noisy", "bits": 8}).values).all()
+    assert list(st.sel({"method_name": "resample", "noise": 1e-3}).values) == ["ok"] * 3
+    assert list(st.sel({"method_name": "resample", "noise": 2e-3}).values) == ["n/a"] * 3
+    assert list(st.sel({"method_name": "suite-noisy", "bits": 6}).values) == ["ok"] * 2
+    assert list(st.sel({"method_name": "suite-noisy", "bits": 10}).values) == ["n/a"] * 2
+    assert np.isnan(cube["nrmse"].sel({"method_name": "suite-noisy", "bits": 8}).values).all()
     assert cube.attrs["n_not_applicable"] == 3 + 4 and cube.attrs["n_failed"] == 0
     assert json.loads(cube.attrs["not_applicable"])["suite-noisy"] == ["bits"]
     filled = fill_not_applicable(cube)
-    a = filled["nrmse"].sel({"method": "suite-noisy"})
-    np.testing.assert_array_equal(a.sel(bits=10).values, cube["nrmse"].sel({"method": "suite-noisy", "bits": 6}).values)
+    a = filled["nrmse"].sel({"method_name": "suite-noisy"})
+    np.testing.assert_array_equal(a.sel(bits=10).values, cube["nrmse"].sel({"method_name": "suite-noisy", "bits": 6}).values)
     assert (filled["status"].values == cube["status"].values).all()
 
 

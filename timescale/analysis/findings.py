@@ -25,7 +25,7 @@ _TABLE = ("nrmse", "sndr_db", "fitted_factor", "bw_out", "area", "power", "energ
 # ---- pure summaries ----------------------------------------------------------------------------
 
 def _cell_dims(ds):
-    return [d for d in ds["status"].dims if d != "method"]
+    return [d for d in ds["status"].dims if d != "method_name"]
 
 
 def _median_trials(da):
@@ -94,7 +94,7 @@ def cell_summary(ds: xr.Dataset, method: str, fidelity: str = "nrmse"):
     failures : list of (message, count, example cell text)
         Failed cells grouped by reason.
     """
-    sub = ds.sel({"method": method})
+    sub = ds.sel({"method_name": method})
     dims = _cell_dims(ds)
     fid = _median_trials(sub[fidelity]).transpose(*dims)
     status = sub["status"].transpose(*dims)
@@ -204,7 +204,7 @@ def findings(ds: xr.Dataset, *, target: float = DEFAULT_TARGET, fidelity: str = 
     """
     if fidelity not in ds:
         raise ValueError(f"fidelity={fidelity!r} is not in the cube; valid: "
-                         f"{', '.join(k for k in ds.data_vars if 'method' in ds[k].dims)}")
+                         f"{', '.join(k for k in ds.data_vars if 'method_name' in ds[k].dims)}")
     if not isinstance(target, (int, float)) or isinstance(target, bool) or not math.isfinite(target):
         raise ValueError(f"target must be a finite number, got {target!r}")
     higher = fidelity in _HIGHER_IS_BETTER
@@ -217,8 +217,8 @@ def findings(ds: xr.Dataset, *, target: float = DEFAULT_TARGET, fidelity: str = 
     tgt = format_value(target, funits, 3)
     pulses = [str(p) for p in ds["pulse"].values]
     out = []
-    for m in (str(v) for v in ds["method"].values):
-        sub = ds.sel({"method": m})
+    for m in (str(v) for v in ds["method_name"].values):
+        sub = ds.sel({"method_name": m})
         fid = _median_trials(sub[fidelity])
         area = _median_trials(sub["area"]) if "area" in sub else None
         power = _median_trials(sub["power"]) if "power" in sub else None

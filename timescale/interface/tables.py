@@ -29,17 +29,17 @@ def cell_table(ds: xr.Dataset, metrics=TABLE_METRICS) -> str:
     """One line per (method, pulse, factor) cell with the median over trials and any other
     swept dims of each metric, in display units, and the cell status."""
     metrics = [m for m in metrics if m in ds]
-    header = ["method", "pulse", "factor"]
+    header = ["method_name", "pulse", "factor"]
     for m in metrics:
         unit, _ = display_unit(ds[m].attrs.get("units", ""))
         header.append(f"{m} ({unit})" if unit else m)
     header.append("status")
-    extra = [d for d in ds["status"].dims if d not in ("method", "pulse", "factor")]
+    extra = [d for d in ds["status"].dims if d not in ("method_name", "pulse", "factor")]
     rows = []
-    for meth in ds["method"].values:
+    for meth in ds["method_name"].values:
         for pulse in ds["pulse"].values:
             for f in ds["factor"].values:
-                sel = dict(method=meth, pulse=pulse, factor=f)
+                sel = dict(method_name=meth, pulse=pulse, factor=f)
                 row = [str(meth), str(pulse), f"{float(f):g}"]
                 for m in metrics:
                     da = ds[m].sel(sel)
@@ -81,7 +81,7 @@ def cube_overview(ds: xr.Dataset) -> str:
         lines.append(f"  {d:<16} {size:>6}  {span}")
     lines.append("metrics:")
     for k, v in ds.data_vars.items():
-        if k in ("status", "message", "design", "bill", "path", "orientation") or "method" not in v.dims:
+        if k in ("status", "message", "design", "bill", "path", "orientation") or "method_name" not in v.dims:
             continue  # per-cell records and the stored input pulses are not metrics
         unit, _ = display_unit(v.attrs.get("units", ""))
         lines.append(f"  {k:<22} {('(' + unit + ')') if unit else '':<8} {v.attrs.get('long_name', '')}")
@@ -93,16 +93,16 @@ def method_table(ds: xr.Dataset, metrics=METHOD_METRICS) -> str:
     trial, failed and not-applicable cells excluded since they are NaN) of each metric, in
     display units."""
     metrics = [m for m in metrics if m in ds]
-    header = ["method"] + list(_STATUSES)
+    header = ["method_name"] + list(_STATUSES)
     for m in metrics:
         unit, _ = display_unit(ds[m].attrs.get("units", ""))
         header.append(f"{m} ({unit})" if unit else m)
     rows = []
-    for meth in ds["method"].values:
-        st = np.asarray(ds["status"].sel({"method": meth}).values).ravel()
+    for meth in ds["method_name"].values:
+        st = np.asarray(ds["status"].sel({"method_name": meth}).values).ravel()
         row = [str(meth)] + [str(int(np.sum(st == s))) for s in _STATUSES]
         for m in metrics:
-            vals = np.asarray(ds[m].sel({"method": meth}).values, dtype=float)
+            vals = np.asarray(ds[m].sel({"method_name": meth}).values, dtype=float)
             v = np.nanmedian(vals) if np.any(np.isfinite(vals)) else np.nan
             row.append(format_value(v, ds[m].attrs.get("units", ""), unit=False))
         rows.append(row)
@@ -116,7 +116,7 @@ def failure_table(ds: xr.Dataset, limit: int = 10) -> str:
     if not len(msgs):
         return ""
     reasons: dict[str, int] = {}
-    meths = ds["method"].broadcast_like(ds["status"]).transpose(*ds["status"].dims).values.ravel()[st == "failed"]
+    meths = ds["method_name"].broadcast_like(ds["status"]).transpose(*ds["status"].dims).values.ravel()[st == "failed"]
     for meth, msg in zip(meths, msgs):
         key = f"{meth}: {str(msg).split(' (at ')[0]}"
         reasons[key] = reasons.get(key, 0) + 1

@@ -26,11 +26,14 @@ __all__ = ["Axis", "assemble", "save_cube", "load_cube", "waveforms_dataset", "i
 
 #: NetCDF engine used for every read and write (NetCDF-4 through h5netcdf).
 ENGINE = "h5netcdf"
-#: The leading dims every cube has.
-CELL_DIMS = ("method", "pulse", "factor")
+#: The leading dims every cube has. The method dim is ``method_name`` so that keyword selection
+#: works (``ds.sel(method_name="resample")``); ``method`` is a keyword of xarray's ``.sel``.
+CELL_DIMS = ("method_name", "pulse", "factor")
+#: What timescale 0.1 called the method dim; :func:`load_cube` renames it.
+OLD_METHOD_DIM = "method"
 
 _COORD_ATTRS = {
-    "method": {"long_name": "time-scaling method", "units": ""},
+    "method_name": {"long_name": "time-scaling method", "units": ""},
     "pulse": {"long_name": "input pulse", "units": ""},
     "factor": {"long_name": "stretch factor α (>1 stretches, <1 compresses)", "units": ""},
     "trial": {"long_name": "Monte Carlo trial", "units": ""},
@@ -240,4 +243,8 @@ def load_cube(path) -> xr.Dataset:
     path = Path(path)
     if not path.is_file():
         raise ValueError(f"path {str(path)!r} is not a file")
-    return xr.load_dataset(path, engine=ENGINE)
+    ds = xr.load_dataset(path, engine=ENGINE)
+    if OLD_METHOD_DIM in ds.dims and CELL_DIMS[0] not in ds.dims:  # a file from timescale 0.1
+        ds = ds.rename({OLD_METHOD_DIM: CELL_DIMS[0]})
+        ds[CELL_DIMS[0]].attrs.update(_COORD_ATTRS[CELL_DIMS[0]])
+    return ds

@@ -83,7 +83,7 @@ PULSE_SHAPES = {
 #: What a suite may keep: metrics only, or the output waveforms as well.
 KEEP = ("metrics", "waveforms")
 #: Names a swept parameter may not take (they are cube dims or variables already).
-_RESERVED = ("method", "pulse", "factor", "trial", "sample", "time", "status", "message", "design",
+_RESERVED = ("method", "method_name", "pulse", "factor", "trial", "sample", "time", "status", "message", "design",
              "bill", "path", "orientation", "value")
 _TOP_KEYS = ("name", "description", "pulses", "methods", "factors", "params", "sweep", "trials",
              "seed", "technology", "keep", "timeout", "sampler_jitter")
@@ -611,7 +611,7 @@ class Plan:
         """The cube's cell dims as :class:`timescale.cube.Axis`."""
         from timescale.runner.cube import Axis
 
-        ax = [Axis("method", list(self.methods)), Axis("pulse", list(self.pulses)),
+        ax = [Axis("method_name", list(self.methods)), Axis("pulse", list(self.pulses)),
               Axis("factor", list(self.factors))]
         for name, vals, units, long_name in self.sweep:
             ax.append(Axis(name, list(vals), units, long_name))
@@ -656,18 +656,18 @@ def fill_not_applicable(ds):
     """
     na = json.loads(ds.attrs.get("not_applicable", "{}"))
     out = ds.copy(deep=True)
-    methods = [str(m) for m in ds["method"].values]
+    methods = [str(m) for m in ds["method_name"].values]
     for m, dims in na.items():
         if not dims or m not in methods:
             continue
         k = methods.index(m)
         for v in ds.data_vars:
             da = ds[v]
-            if v in ("status", "message") or "method" not in da.dims or not any(d in da.dims for d in dims):
+            if v in ("status", "message") or "method_name" not in da.dims or not any(d in da.dims for d in dims):
                 continue
-            a = np.moveaxis(out[v].values, da.dims.index("method"), 0)  # a view on out's data
+            a = np.moveaxis(out[v].values, da.dims.index("method_name"), 0)  # a view on out's data
             sub = a[k]
-            sub_dims = [d for d in da.dims if d != "method"]
+            sub_dims = [d for d in da.dims if d != "method_name"]
             src = sub[tuple(slice(0, 1) if d in dims else slice(None) for d in sub_dims)]
             sub[...] = np.broadcast_to(src, sub.shape)
     return out

@@ -93,7 +93,7 @@ def plot_map(ds, metric="nrmse", x="factor", y=None, *, ax=None, methods=None, s
     py, ty, ylabel, _ = _coord_axis(sub, y)
     grids = {}
     for m in meths:
-        arr, other = _reduced(da.sel({"method": m}), [y, x])
+        arr, other = _reduced(da.sel({"method_name": m}), [y, x])
         grids[m] = (_nanmedian(arr.reshape(-1, arr.shape[-1])).reshape(arr.shape[:2]), other)
     allv = np.concatenate([g.ravel() for g, _ in grids.values()]) * k
     fin = allv[np.isfinite(allv)]

@@ -42,7 +42,7 @@ INPUT_STYLE = {"color": "#000000", "linestyle": "-", "linewidth": 2.6, "alpha": 
 #: Style of the ideal scaled reference in every figure.
 IDEAL_STYLE = {"color": "#333333", "linestyle": (0, (4, 2)), "linewidth": 1.2}
 
-_CELL = ("method", "pulse", "factor")
+_CELL = ("method_name", "pulse", "factor")
 
 
 def method_style(name: str) -> dict[str, str]:
@@ -141,13 +141,13 @@ def _new_axes(ax, figsize):
 def _check_cube(ds, name="ds"):
     if not isinstance(ds, xr.Dataset):
         raise TypeError(f"{name} must be a results cube (xarray.Dataset), got {type(ds).__name__}")
-    if "method" not in ds.dims:
-        raise ValueError(f"{name} has no 'method' dimension; is it a timescale results cube?")
+    if "method_name" not in ds.dims:
+        raise ValueError(f"{name} has no 'method_name' dimension; is it a timescale results cube?")
 
 
 def _numeric_vars(ds):
     return [k for k, v in ds.data_vars.items()
-            if np.issubdtype(v.dtype, np.number) and "method" in v.dims and k != "orientation"]
+            if np.issubdtype(v.dtype, np.number) and "method_name" in v.dims and k != "orientation"]
 
 
 def _check_var(ds, name, what):
@@ -162,8 +162,8 @@ def _check_var(ds, name, what):
 
 def _swept_dims(ds):
     """Dims a figure may put on an axis: every cell dim except ``method`` and ``trial``."""
-    return [d for d in ds["status"].dims if d != "method"] if "status" in ds else \
-        [d for d in ds.dims if d not in ("method", "trial")]
+    return [d for d in ds["status"].dims if d != "method_name"] if "status" in ds else \
+        [d for d in ds.dims if d not in ("method_name", "trial")]
 
 
 def _check_dim(ds, name, what):
@@ -205,7 +205,7 @@ def _select(ds, select):
 
 
 def _methods(ds, methods):
-    have = [str(m) for m in ds["method"].values]
+    have = [str(m) for m in ds["method_name"].values]
     if methods is None:
         return have
     if isinstance(methods, str):
@@ -298,7 +298,7 @@ def _nanquantile(a, q):
 
 def _failed_any(ds, method, keep):
     """Per position on `keep` dims: does any cell of `method` there have status failed?"""
-    st = ds["status"].sel({"method": method})
+    st = ds["status"].sel({"method_name": method})
     other = [d for d in st.dims if d not in keep]
     st = st.transpose(*keep, *other)
     arr = np.asarray(st.values).astype(str).reshape([st.sizes[d] for d in keep] + [-1])

@@ -144,7 +144,7 @@ def plot_metric(ds, metric="nrmse", over="factor", *, ax=None, methods=None, sel
         raise ValueError(f"floor must be a number > 0 or None, got {floor!r}")
     any_floored = False
     for i_m, m in enumerate(meths):
-        dm = da.sel({"method": m})
+        dm = da.sel({"method_name": m})
         keep = [over] + (["trial"] if "trial" in dm.dims else [])
         arr, other_dims = _reduced(dm, keep)  # (n_over[, n_trial], k_other)
         per_trial = _reduce_others(arr, others, higher) if other_dims else arr[..., 0]

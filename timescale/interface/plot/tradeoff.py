@@ -112,10 +112,10 @@ def plot_tradeoff(ds, cost="area", fidelity="nrmse", *, ax=None, methods=None, s
     if floor is not None and not (isinstance(floor, (int, float)) and floor > 0):
         raise ValueError(f"floor must be a number > 0 or None, got {floor!r}")
     for m in meths:
-        keep = [d for d in sub["status"].dims if d != "method"] if "status" in sub else \
-            [d for d in sub[fidelity].dims if d not in ("method", "trial")]
-        fx, _ = _reduced(sub[fidelity].sel({"method": m}), keep)
-        cy, _ = _reduced(sub[cost].sel({"method": m}), keep)
+        keep = [d for d in sub["status"].dims if d != "method_name"] if "status" in sub else \
+            [d for d in sub[fidelity].dims if d not in ("method_name", "trial")]
+        fx, _ = _reduced(sub[fidelity].sel({"method_name": m}), keep)
+        cy, _ = _reduced(sub[cost].sel({"method_name": m}), keep)
         fx, cy = _nanmedian(fx.reshape(-1, fx.shape[-1])), _nanmedian(cy.reshape(-1, cy.shape[-1]))
         ok = np.isfinite(fx) & np.isfinite(cy)
         n_missing += int(np.sum(~ok))

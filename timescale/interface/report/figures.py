@@ -85,7 +85,7 @@ def _build_figures(ds, *, target, fidelity, outcomes, pname, factor):
                      "cheaper and more faithful.", fig))
     two = [d for d in _cell_dims(ds) if d != "pulse" and ds.sizes[d] > 1]
     if len(two) >= 2:
-        n = ds.sizes["method"]
+        n = ds.sizes["method_name"]
         fig = _figure((3.3 * n + 1.4, 3.9))
         axs = fig.subplots(1, n, squeeze=False, sharey=True)[0]
         plot.plot_map(ds, fidelity, two[0], two[1], ax=list(axs))

@@ -199,7 +199,7 @@ def write_report(ds: xr.Dataset, folder, *, title: str | None = None, target: fl
     Path
         The HTML page.
     """
-    if not isinstance(ds, xr.Dataset) or "method" not in ds.dims or "status" not in ds:
+    if not isinstance(ds, xr.Dataset) or "method_name" not in ds.dims or "status" not in ds:
         raise TypeError(f"ds must be a timescale results cube (xarray.Dataset with a method dim and "
                         f"a status variable), got {type(ds).__name__}")
     if fidelity not in ds:
@@ -223,7 +223,7 @@ def write_report(ds: xr.Dataset, folder, *, title: str | None = None, target: fl
     cmp = "≥" if fidelity in _HIGHER_IS_BETTER else "≤"
     fid_name = "NRMSE" if fidelity == "nrmse" else ds[fidelity].attrs.get("long_name", fidelity)
     tgt = format_value(target, ds[fidelity].attrs.get("units", ""), 3)
-    methods = [str(m) for m in ds["method"].values]
+    methods = [str(m) for m in ds["method_name"].values]
     dims = _cell_dims(ds)
     n_trials = ds.sizes.get("trial", 1)
 

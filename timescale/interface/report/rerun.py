@@ -35,8 +35,8 @@ def _representative(ds, fidelity):
     factors = [float(f) for f in ds["factor"].values]
     for p in (str(v) for v in ds["pulse"].values):
         ok = [f for f in factors if f > 1 and all(
-            np.any(np.isfinite(np.asarray(fid.sel({"method": m, "pulse": p, "factor": f}).values, dtype=float)))
-            for m in ds["method"].values)]
+            np.any(np.isfinite(np.asarray(fid.sel({"method_name": m, "pulse": p, "factor": f}).values, dtype=float)))
+            for m in ds["method_name"].values)]
         if ok:
             return p, max(ok)
     return str(ds["pulse"].values[0]), max(factors)
@@ -77,13 +77,13 @@ def _rerun(ds, pulses, fidelity, pulse=None, factor=None):
     have = set(available_methods())
     settings = [d for d in _cell_dims(ds) if d not in ("pulse", "factor")]
     outcomes, notes = {}, []
-    for m in (str(v) for v in ds["method"].values):
+    for m in (str(v) for v in ds["method_name"].values):
         if m not in have:
             notes.append(f"{m}: not installed here, so its waveform could not be re-run.")
             continue
         kw = dict(params.get(m, {}))
         if settings:  # the setting with the best fidelity at this pulse and factor
-            fid = _median_trials(ds[fidelity]).sel({"method": m, "pulse": pname, "factor": factor})
+            fid = _median_trials(ds[fidelity]).sel({"method_name": m, "pulse": pname, "factor": factor})
             arr = np.asarray(fid.transpose(*settings).values, dtype=float)
             if np.any(np.isfinite(arr)):
                 higher = fidelity in _HIGHER_IS_BETTER
