@@ -122,7 +122,7 @@ def test_batched_pulse_is_refused():
 
 def test_a_cube_from_version_0_1_loads_with_the_new_method_dim(tmp_path):
     # timescale 0.1 named the method dim "method"; such files load with it renamed
-    ds = timescale.compare(Ideal().__class__ and pulses(), ["resample"], [2.0], seed=3)
+    ds = timescale.compare(pulses(), ["resample"], [2.0], seed=3)
     old = ds.rename({"method_name": "method"})
     path = tmp_path / "old.nc"
     old.to_netcdf(path, engine="h5netcdf")

@@ -104,7 +104,7 @@ def test_broken_method_fails_only_its_cells(noisy):
     assert "4 failed" in res.summary() and "non-finite" in res.summary()
     table = method_table(cube).splitlines()
     row = next(line for line in table if line.startswith("suite-broken")).split()
-    assert row[1:5] == ["2", "0", "4", "0"]  # ok, warned, failed, n/a of that method alone
+    assert row[1:6] == ["2", "0", "0", "4", "0"]  # ok, warned, infeasible, failed, n/a of that method
     assert "2 x suite-broken: FloatingPointError" in failure_table(cube)
 
 

@@ -219,7 +219,8 @@ def findings(ds: xr.Dataset, *, target: float = DEFAULT_TARGET, fidelity: str = 
     out = []
     for m in (str(v) for v in ds["method_name"].values):
         sub = ds.sel({"method_name": m})
-        fid = _median_trials(sub[fidelity])
+        # a design the process cannot build serves nothing, however good its waveform
+        fid = _median_trials(sub[fidelity]).where(sub["status"] != "infeasible")
         area = _median_trials(sub["area"]) if "area" in sub else None
         power = _median_trials(sub["power"]) if "power" in sub else None
         # per pulse and factor: ("meets", area, power) | ("misses", best) | ("failed", reason)

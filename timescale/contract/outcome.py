@@ -10,7 +10,7 @@ import warnings
 
 import numpy as np
 
-from timescale.contract.plugin import Method, Outcome
+from timescale.contract.plugin import Limit, Method, Outcome
 from timescale.contract.registry import get_method
 from timescale.data.errors import TimescaleWarning
 from timescale.data.pulse import Pulse
@@ -78,13 +78,18 @@ def stretch(pulse: Pulse, method, factor: float, *, trials: int = 1, seed=None,
 
 
 def run_method(m: Method, pulse, factor, params, technology, rng, trials, reissue=False) -> Outcome:
-    """Design, simulate and bill; timescale warnings are kept on the outcome (and shown to the
-    caller too when `reissue`)."""
+    """Design, simulate, bill and check the process limits; timescale warnings are kept on the
+    outcome (and shown to the caller too when `reissue`)."""
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", TimescaleWarning)
         design = m.design(pulse, factor, params, technology)
         sim = m.simulate(pulse, design, params, rng, trials, technology)
         bill = m.bill(design, params, technology)
+        limits = tuple(m.limits(design, params, technology))
+    for lim in limits:
+        if not isinstance(lim, Limit):
+            raise TypeError(f"method {m.name!r}: limits() must return timescale.plugin.Limit records, "
+                            f"got {type(lim).__name__}")
     for w in caught:  # re-issue what was not ours; ours only when asked
         if reissue or not issubclass(w.category, TimescaleWarning):
             warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
@@ -98,4 +103,4 @@ def run_method(m: Method, pulse, factor, params, technology, rng, trials, reissu
         )
     return Outcome(method=m.name, factor=factor, input=pulse, pulse=out, design=design, bill=bill,
                    params=params, orientation=sim.orientation, metrics=sim.metrics, path=sim.path,
-                   clean=sim.clean, warnings=ours)
+                   clean=sim.clean, warnings=ours, limits=limits)

@@ -59,6 +59,7 @@ __all__ = [
     "Bill",
     "BillItem",
     "Metric",
+    "Limit",
     "Simulation",
     "Outcome",
     "Pulse",
@@ -73,7 +74,8 @@ __all__ = [
 hookimpl = pluggy.HookimplMarker("timescale")
 
 
-def param(default, *, units: str = "", doc: str = "", choices: tuple | None = None):
+def param(default, *, units: str = "", doc: str = "", choices: tuple | None = None,
+          bounds: tuple | None = None):
     """Declare a field of a method's ``Params`` dataclass with its unit and meaning.
 
     Parameters
@@ -86,10 +88,18 @@ def param(default, *, units: str = "", doc: str = "", choices: tuple | None = No
         One line saying what the parameter sets.
     choices : tuple, optional
         The valid values, for a parameter that picks one of several options.
+    bounds : tuple of (low, high), optional
+        Inclusive limits of a numeric parameter, in its `units`; either may be None (open).
+        :meth:`Method.make_params` refuses a value outside them, naming them.
     """
     meta = {"units": units, "doc": doc}
     if choices is not None:
         meta["choices"] = tuple(choices)
+    if bounds is not None:
+        lo, hi = bounds
+        if lo is not None and hi is not None and lo > hi:
+            raise ValueError(f"param bounds must be (low, high) with low <= high, got {bounds!r}")
+        meta["bounds"] = (lo, hi)
     return field(default=default, metadata=meta)
 
 
@@ -214,6 +224,68 @@ class Bill:
 
 
 @dataclass(frozen=True)
+class Limit:
+    """One process limit a design is checked against (see :meth:`Method.limits`).
+
+    Attributes
+    ----------
+    name : str
+        What is limited, in plain words ("gm cell's own pole", "chirp span", "die area").
+    need : float
+        What the design needs, in `units`.
+    allowed : float
+        What the technology card allows, in `units`.
+    units : str
+        SI unit of `need` and `allowed`.
+    kind : {"max", "min"}
+        "max": the need must not exceed what is allowed; "min": it must reach it.
+    note : str
+        Where the allowed value comes from.
+    """
+
+    name: str
+    need: float
+    allowed: float
+    units: str = ""
+    kind: str = "max"
+    note: str = ""
+
+    def __post_init__(self):
+        if self.kind not in ("max", "min"):
+            raise ValueError(f"Limit.kind must be 'max' or 'min', got {self.kind!r}")
+        for k in ("need", "allowed"):
+            v = getattr(self, k)
+            if not isinstance(v, (int, float, np.integer, np.floating)) or isinstance(v, bool) or not v >= 0:
+                raise ValueError(f"Limit.{k} of {self.name!r} must be a number >= 0, got {v!r}")
+            object.__setattr__(self, k, float(v))
+
+    @property
+    def margin(self) -> float:
+        """How far inside the limit the design sits: allowed/need ("max") or need/allowed
+        ("min"); >= 1 means the limit is met (dimensionless)."""
+        num, den = (self.allowed, self.need) if self.kind == "max" else (self.need, self.allowed)
+        return math.inf if den == 0 else num / den
+
+    @property
+    def met(self) -> bool:
+        """True when the design respects the limit."""
+        return self.margin >= 1.0
+
+    def describe(self) -> str:
+        """One line: the limit, what the design needs and what the card allows."""
+        verb = "exceeds" if self.kind == "max" else "falls short of"
+        state = verb if not self.met else ("within" if self.kind == "max" else "meets")
+        return f"{self.name}: needs {self.need:.4g} {self.units}".rstrip() + \
+            f", {state} the card's {self.allowed:.4g} {self.units}".rstrip() + f" (margin {self.margin:.3g}x)"
+
+    def as_dict(self) -> dict[str, Any]:
+        """JSON-friendly form, with the margin."""
+        d = dataclasses.asdict(self)
+        d["margin"] = self.margin
+        return _jsonable(d)
+
+
+@dataclass(frozen=True)
 class Metric:
     """A method-specific metric added to the results cube.
 
@@ -296,6 +368,8 @@ class Outcome:
         Noise-free output, when the method adds noise.
     warnings : tuple of str
         Warnings raised while designing or simulating.
+    limits : tuple of Limit
+        The process limits the design was checked against (met or not).
     """
 
     method: str
@@ -310,6 +384,12 @@ class Outcome:
     path: str = "exact"
     clean: Pulse | None = None
     warnings: tuple[str, ...] = ()
+    limits: tuple[Limit, ...] = ()
+
+    @property
+    def feasible(self) -> bool:
+        """True when the design respects every process limit the method checks."""
+        return all(lim.met for lim in self.limits)
 
 
 class Method(abc.ABC):
@@ -438,6 +518,15 @@ class Method(abc.ABC):
     def bill(self, design: Design, params: Any, technology: Technology) -> Bill:
         """Return the cost of `design` in `technology`."""
 
+    def limits(self, design: Design, params: Any, technology: Technology) -> tuple[Limit, ...]:
+        """Check `design` against what `technology` can build (optional; default: none).
+
+        Return one :class:`Limit` per check, met or not: a design with any unmet limit is
+        recorded as ``"infeasible"`` (its metrics are still computed and stored), and the
+        limit with the smallest margin is named as the binding one.
+        """
+        return ()
+
     def __repr__(self) -> str:
         return f"<timescale method {self.name!r}>"
 
@@ -469,6 +558,14 @@ def _check_param(method: str, f: dataclasses.Field, value) -> None:
             f"parameter {f.name!r} of method {method!r} must be {type(default).__name__} "
             f"(like the default {default!r}), got {value!r} ({type(value).__name__})"
         )
+    bounds = f.metadata.get("bounds")
+    if bounds is not None:
+        lo, hi = bounds
+        if (lo is not None and value < lo) or (hi is not None and value > hi):
+            units = f.metadata.get("units", "")
+            span = (f">= {lo:g}" if hi is None else f"<= {hi:g}" if lo is None else f"in [{lo:g}, {hi:g}]")
+            raise ValueError(f"parameter {f.name!r} of method {method!r} must be {span}"
+                             f"{' ' + units if units else ''}, got {value!r}")
 
 
 def _jsonable(obj):

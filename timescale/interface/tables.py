@@ -29,7 +29,7 @@ def cell_table(ds: xr.Dataset, metrics=TABLE_METRICS) -> str:
     """One line per (method, pulse, factor) cell with the median over trials and any other
     swept dims of each metric, in display units, and the cell status."""
     metrics = [m for m in metrics if m in ds]
-    header = ["method_name", "pulse", "factor"]
+    header = ["method", "pulse", "factor"]
     for m in metrics:
         unit, _ = display_unit(ds[m].attrs.get("units", ""))
         header.append(f"{m} ({unit})" if unit else m)
@@ -48,7 +48,7 @@ def cell_table(ds: xr.Dataset, metrics=TABLE_METRICS) -> str:
                     row.append(format_value(v, ds[m].attrs.get("units", ""), unit=False))
                 st = ds["status"].sel(sel).values
                 st = np.atleast_1d(st)
-                counts = {s: int(np.sum(st == s)) for s in ("ok", "warned", "failed") if np.any(st == s)}
+                counts = {s: int(np.sum(st == s)) for s in ("ok", "warned", "infeasible", "failed") if np.any(st == s)}
                 row.append(", ".join(f"{k}" if len(st) == 1 else f"{v} {k}" for k, v in counts.items()))
                 rows.append(row)
     table = format_table(header, rows)
@@ -59,7 +59,7 @@ def cell_table(ds: xr.Dataset, metrics=TABLE_METRICS) -> str:
 
 #: Metrics shown in the per-method table, in order.
 METHOD_METRICS = ("nrmse", "sndr_db", "fitted_factor", "bw_internal", "area", "power", "energy_per_pulse")
-_STATUSES = ("ok", "warned", "failed", "n/a")
+_STATUSES = ("ok", "warned", "infeasible", "failed", "n/a")
 
 
 def cube_overview(ds: xr.Dataset) -> str:
@@ -93,7 +93,7 @@ def method_table(ds: xr.Dataset, metrics=METHOD_METRICS) -> str:
     trial, failed and not-applicable cells excluded since they are NaN) of each metric, in
     display units."""
     metrics = [m for m in metrics if m in ds]
-    header = ["method_name"] + list(_STATUSES)
+    header = ["method"] + list(_STATUSES)
     for m in metrics:
         unit, _ = display_unit(ds[m].attrs.get("units", ""))
         header.append(f"{m} ({unit})" if unit else m)

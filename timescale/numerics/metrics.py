@@ -63,6 +63,7 @@ METRICS: dict[str, tuple[str, str]] = {
     "area": ("m2", "silicon area"),
     "power": ("W", "active power"),
     "energy_per_pulse": ("J", "energy per pulse"),
+    "limit_margin": ("", "margin to the nearest process limit (>= 1 buildable)"),
 }
 
 #: Metrics where a larger value is better; for every other metric smaller is better.

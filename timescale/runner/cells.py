@@ -8,6 +8,7 @@ Data flow: Pulse → Method.design → Method.simulate → Outcome → metrics �
 from __future__ import annotations
 
 import json
+import math
 import traceback
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -81,6 +82,8 @@ class Row:
     path: str = ""
     orientation: int = 1
     waveform: Pulse | None = None
+    limits: str = ""  # JSON list of the checked limits
+    binding: str = ""  # the unmet (or nearest) limit, in words; "" when none is checked
 
 
 def cell_rng(entropy: int, index: int) -> np.random.Generator:
@@ -93,7 +96,9 @@ def run_cell(spec: CellSpec) -> Row:
     """Run one cell and measure it; never raises for a failure inside the method.
 
     A method that raises, or returns non-finite output, gives a row with status ``"failed"``
-    and the reason; a method that warns gives ``"warned"``.
+    and the reason; a design that breaks a process limit gives ``"infeasible"`` (with its
+    metrics, and the binding limit first in the message); a method that warns gives
+    ``"warned"``.
     """
     try:
         m = get_method(spec.method)
@@ -105,24 +110,24 @@ def run_cell(spec: CellSpec) -> Row:
         values, attrs = measure(oc, spec.sampler_jitter)
         design_json = json.dumps(oc.design.as_dict(), sort_keys=True)
         bill_json = json.dumps(oc.bill.as_dict(), sort_keys=True)
+        limits_json = json.dumps([lim.as_dict() for lim in oc.limits], sort_keys=True)
     except Exception as exc:  # isolate the cell: record why, keep the suite going
         msg = f"{type(exc).__name__}: {exc}"
         tb = traceback.extract_tb(exc.__traceback__)
         if tb:
             msg += f" (at {tb[-1].filename.rsplit('/', 1)[-1]}:{tb[-1].lineno})"
         return Row(spec.index, "failed", msg)
-    return Row(
-        spec.index,
-        "warned" if oc.warnings else "ok",
-        "; ".join(oc.warnings),
-        values,
-        attrs,
-        design_json,
-        bill_json,
-        oc.path,
-        oc.orientation,
-        oc.pulse if spec.keep_waveform else None,
-    )
+    ordered = sorted(oc.limits, key=lambda lim: lim.margin)
+    unmet = [lim for lim in ordered if not lim.met]
+    if unmet:
+        status = "infeasible"
+        message = "; ".join(["infeasible: " + unmet[0].describe()] + [u.describe() for u in unmet[1:]]
+                            + list(oc.warnings))
+    else:
+        status, message = ("warned" if oc.warnings else "ok"), "; ".join(oc.warnings)
+    return Row(spec.index, status, message, values, attrs, design_json, bill_json, oc.path,
+               oc.orientation, oc.pulse if spec.keep_waveform else None, limits_json,
+               ordered[0].name if ordered else "")
 
 
 def measure(oc: Outcome, sampler_jitter: float = DEFAULT_SAMPLER_JITTER):
@@ -154,6 +159,7 @@ def measure(oc: Outcome, sampler_jitter: float = DEFAULT_SAMPLER_JITTER):
         "area": oc.bill.area,
         "power": oc.bill.power,
         "energy_per_pulse": oc.bill.energy_per_pulse,
+        "limit_margin": min((lim.margin for lim in oc.limits), default=math.nan),
     }
     attrs = dict(metrics.METRICS)
     for name, count in oc.bill.counts.items():

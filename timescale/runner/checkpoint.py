@@ -26,7 +26,8 @@ _FSYNC_INTERVAL = 0.5  # s: fsync at most this often (a flush already survives a
 def _encode(row: Row, seen_attrs: set) -> str:
     d = {"i": row.index, "s": row.status, "m": row.message,
          "v": {k: np.asarray(v).tolist() for k, v in row.values.items()},
-         "d": row.design, "b": row.bill, "p": row.path, "o": row.orientation}
+         "d": row.design, "b": row.bill, "p": row.path, "o": row.orientation,
+         "l": row.limits, "k": row.binding}
     new = {k: list(v) for k, v in row.attrs.items() if k not in seen_attrs}
     if new:
         d["a"] = new
@@ -42,7 +43,7 @@ def _decode(d: dict, attrs: dict) -> Row:
     w = d.get("w")
     wave = None if w is None else Pulse(np.asarray(w["values"], dtype=float), w["rate"], w["t0"], w["units"], w["name"])
     return Row(d["i"], d["s"], d["m"], {k: np.asarray(v, dtype=float) for k, v in d["v"].items()},
-               attrs, d["d"], d["b"], d["p"], d["o"], wave)
+               attrs, d["d"], d["b"], d["p"], d["o"], wave, d.get("l", ""), d.get("k", ""))
 
 
 class Checkpoint:

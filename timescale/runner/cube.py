@@ -96,11 +96,14 @@ def assemble(rows, axes, *, trials=1, provenance=None, methods=(), pulses=None):
     design = np.full(ncell, "", dtype=object)
     bill = np.full(ncell, "", dtype=object)
     path = np.full(ncell, "", dtype=object)
+    limits = np.full(ncell, "", dtype=object)
+    binding = np.full(ncell, "", dtype=object)
     orientation = np.full(ncell, np.nan)
     for r in rows:
         i = r.index
         status[i], message[i] = r.status, r.message
         design[i], bill[i], path[i] = r.design, r.bill, r.path
+        limits[i], binding[i] = r.limits, r.binding
         if r.status not in ("failed", "n/a"):  # "n/a": a swept parameter the method lacks
             orientation[i] = r.orientation
         for k, v in r.values.items():
@@ -113,11 +116,13 @@ def assemble(rows, axes, *, trials=1, provenance=None, methods=(), pulses=None):
         units, long_name = attrs[k]
         ds[k] = xr.DataArray(data[k].reshape(vshape), dims=vdims,
                              attrs={"units": units, "long_name": long_name})
-    for k, arr, ln in (("status", status, "cell status (ok, warned, failed)"),
+    for k, arr, ln in (("status", status, "cell status (ok, warned, infeasible, failed, n/a)"),
                        ("message", message, "warnings or the failure reason"),
                        ("design", design, "design record (JSON)"),
                        ("bill", bill, "bill of the design (JSON)"),
-                       ("path", path, "simulation path")):
+                       ("path", path, "simulation path"),
+                       ("limits", limits, "process limits checked (JSON: need, allowed, margin)"),
+                       ("binding_limit", binding, "the process limit with the least margin")):
         ds[k] = xr.DataArray(arr.reshape(shape), dims=dims, attrs={"units": "", "long_name": ln})
     ds["orientation"] = xr.DataArray(orientation.reshape(shape), dims=dims,
                                      attrs={"units": "", "long_name": "image orientation (+1 upright, -1 time-reversed)"})
@@ -136,6 +141,7 @@ def assemble(rows, axes, *, trials=1, provenance=None, methods=(), pulses=None):
         n_cells=ncell,
         n_failed=int(np.sum(status == "failed")),
         n_warned=int(np.sum(status == "warned")),
+        n_infeasible=int(np.sum(status == "infeasible")),
         n_not_applicable=int(np.sum(status == "n/a")),
     )
     for k, v in (provenance or {}).items():
