@@ -22,7 +22,12 @@ from dataclasses import dataclass, fields
 from timescale.data.checks import read_toml
 from timescale.data.errors import closest
 
-__all__ = ["Technology", "PRESETS", "preset", "DEFAULT_TECHNOLOGY"]
+__all__ = ["Technology", "PRESETS", "preset", "DEFAULT_TECHNOLOGY", "CORNERS"]
+
+#: Process corners a card can describe.
+CORNERS = ("typical", "slow", "fast")
+#: Fields where 0 is meaningful (no spread, no temperature dependence, an ideal clock or detector).
+_ZERO_ALLOWED = ("gm_spread", "cap_spread", "gm_temperature_exponent", "adc_jitter", "detector_noise_density")
 
 
 def _f(units: str, doc: str):
@@ -58,6 +63,33 @@ class Technology:
     detector_power: float = _f("W", "power of an envelope detector")
     detector_area: float = _f("m²", "area of an envelope detector")
     switch_area: float = _f("m²", "area of one sampling switch with its driver")
+    # -- process limits and spreads (what feasibility, corners and calibrated costs need) --
+    f_t: float = _f("Hz", "transit frequency f_T of the transconductor devices at the chosen gm/I_D")
+    gm_parasitic_cap: float = _f("F/S", "a gm cell's own capacitance per siemens of gm (devices and "
+                                 "wiring); its pole gm/(2π·C) bounds the highest usable filter pole")
+    layout_overhead: float = _f("", "active area over the summed area of devices, capacitors and "
+                                "spirals (wiring, bias, decoupling, switch drivers)")
+    die_area: float = _f("m²", "largest single die a design may occupy")
+    adc_corner_rate: float = _f("Hz", "sample rate above which the ADC figure of merit worsens 10 dB "
+                                "per decade (survey frontier); adc_fom holds below it")
+    adc_max_rate: float = _f("Hz", "highest sample rate of one ADC channel on this card")
+    adc_jitter: float = _f("s", "rms aperture jitter of the best sampling clock on this card")
+    vco_fom: float = _f("dB", "oscillator phase-noise figure of merit "
+                        "-L(Δf) + 20·log10(f0/Δf) - 10·log10(P/1 mW)")
+    chirp_max_fractional_span: float = _f("", "widest chirp span one source covers, as a fraction "
+                                          "of its carrier")
+    carrier_max_fraction: float = _f("", "highest carrier or LO frequency, as a fraction of f_T")
+    mixer_noise_figure: float = _f("dB", "single-sideband noise figure of one active mixer")
+    detector_noise_density: float = _f("V/√Hz", "input-referred noise density of an envelope detector")
+    inductor_substrate_cap: float = _f("F/m²", "capacitance per area of spiral track to the substrate "
+                                       "(with the track area, sets a spiral's self-resonance)")
+    gm_spread: float = _f("", "relative gm change at the process corners: slow x(1 - s), fast x(1 + s)")
+    cap_spread: float = _f("", "relative capacitance change at the corners: slow x(1 + s), fast x(1 - s)")
+    temperature_nominal: float = _f("K", "temperature at which the hardware is sized")
+    temperature_min: float = _f("K", "lowest operating temperature the card covers")
+    temperature_max: float = _f("K", "highest operating temperature the card covers")
+    gm_temperature_exponent: float = _f("", "x in gm ∝ (T/T_nominal)^-x at a fixed bias current")
+    corner: str = _f("", "process corner this card describes: typical, slow or fast")
 
     def __post_init__(self):
         for f in fields(self):
@@ -71,12 +103,62 @@ class Technology:
                     f"technology field {f.name!r} must be a number in {f.metadata['units'] or 'no unit'}, "
                     f"got {value!r} ({type(value).__name__})"
                 )
-            if not value > 0 or value != value or value == float("inf"):
+            zero_ok = f.name in _ZERO_ALLOWED
+            if value != value or value == float("inf") or not (value >= 0 if zero_ok else value > 0):
                 raise ValueError(
-                    f"technology field {f.name!r} must be finite and > 0 "
+                    f"technology field {f.name!r} must be finite and {'>= 0' if zero_ok else '> 0'} "
                     f"({f.metadata['units'] or 'no unit'}), got {value!r}"
                 )
             object.__setattr__(self, f.name, float(value))
+        if self.corner not in CORNERS:
+            raise ValueError(f"technology field 'corner' must be one of {', '.join(CORNERS)}, got {self.corner!r}")
+        if not self.temperature_min <= self.temperature_nominal <= self.temperature_max:
+            raise ValueError(
+                f"technology temperatures must satisfy temperature_min <= temperature_nominal <= "
+                f"temperature_max, got {self.temperature_min:g} K, {self.temperature_nominal:g} K, "
+                f"{self.temperature_max:g} K")
+        for name in ("gm_spread", "cap_spread"):
+            if getattr(self, name) >= 1:
+                raise ValueError(f"technology field {name!r} must be < 1 (a relative change), "
+                                 f"got {getattr(self, name)!r}")
+
+    # -- corners and temperature ------------------------------------------------------------
+    def at_corner(self, corner: str = "typical", temperature: float | None = None) -> "Technology":
+        """Return this card at a process corner and an operating temperature.
+
+        Parameters
+        ----------
+        corner : {"typical", "slow", "fast"}
+            Process corner; its gm and capacitance factors are :attr:`gm_factor` and
+            :attr:`cap_factor` of the returned card.
+        temperature : float, optional
+            Operating temperature, K, within [temperature_min, temperature_max] (default: keep
+            this card's ``temperature``).
+        """
+        if corner not in CORNERS:
+            raise ValueError(f"corner must be one of {', '.join(CORNERS)}, got {corner!r}{closest(str(corner), CORNERS)}")
+        t = self.temperature if temperature is None else temperature
+        if isinstance(t, bool) or not isinstance(t, (int, float)) or not (
+                self.temperature_min <= t <= self.temperature_max):
+            raise ValueError(
+                f"temperature must be a number of kelvin within this card's range "
+                f"[{self.temperature_min:g}, {self.temperature_max:g}] K, got {t!r}")
+        return dataclasses.replace(self, corner=corner, temperature=float(t))
+
+    @property
+    def gm_factor(self) -> float:
+        """Transconductance at this corner and temperature over its typical, nominal-temperature
+        value (the same bias current): (1 ± gm_spread)·(T/T_nominal)^(−gm_temperature_exponent)."""
+        sign = {"typical": 0.0, "slow": -1.0, "fast": 1.0}[self.corner]
+        return (1.0 + sign * self.gm_spread) * (self.temperature / self.temperature_nominal) ** (
+            -self.gm_temperature_exponent)
+
+    @property
+    def cap_factor(self) -> float:
+        """Capacitance at this corner over its typical value: slow (1 + cap_spread), fast
+        (1 − cap_spread)."""
+        sign = {"typical": 0.0, "slow": 1.0, "fast": -1.0}[self.corner]
+        return 1.0 + sign * self.cap_spread
 
     @classmethod
     def field_units(cls) -> dict[str, str]:
@@ -172,6 +254,26 @@ PRESETS: dict[str, Technology] = {
         detector_power=2e-3,
         detector_area=0.005e-6,
         switch_area=20e-12,
+        f_t=60e9,
+        gm_parasitic_cap=6e-12,  # 6 fF/mS: own pole 26.5 GHz
+        layout_overhead=2.5,  # common practice, no source
+        die_area=25e-6,  # a 5 mm x 5 mm die
+        adc_corner_rate=300e6,
+        adc_max_rate=10e9,
+        adc_jitter=100e-15,
+        vco_fom=180.0,
+        chirp_max_fractional_span=0.2,
+        carrier_max_fraction=0.3,
+        mixer_noise_figure=12.0,
+        detector_noise_density=10e-9,
+        inductor_substrate_cap=6.9e-6,  # ε_ox/t_ox for 5 µm of oxide
+        gm_spread=0.15,
+        cap_spread=0.10,
+        temperature_nominal=300.0,
+        temperature_min=233.15,  # -40 °C
+        temperature_max=358.15,  # 85 °C
+        gm_temperature_exponent=1.0,
+        corner="typical",
     ),
 }
 PRESETS["example-fast"] = dataclasses.replace(
@@ -191,6 +293,12 @@ PRESETS["example-fast"] = dataclasses.replace(
     dac_fom=8e-15,
     memory_energy_per_bit=3e-15,
     memory_area_per_bit=0.15e-12,
+    f_t=150e9,
+    gm_parasitic_cap=2.5e-12,
+    adc_corner_rate=1e9,
+    adc_max_rate=30e9,
+    adc_jitter=60e-15,
+    vco_fom=185.0,
 )
 PRESETS["example-coarse"] = dataclasses.replace(
     PRESETS["example-balanced"],
@@ -210,6 +318,60 @@ PRESETS["example-coarse"] = dataclasses.replace(
     dac_fom=100e-15,
     memory_energy_per_bit=50e-15,
     memory_area_per_bit=3e-12,
+    f_t=15e9,
+    gm_parasitic_cap=25e-12,
+    adc_corner_rate=50e6,
+    adc_max_rate=1e9,
+    adc_jitter=500e-15,
+    vco_fom=175.0,
+    gm_spread=0.10,
+    cap_spread=0.05,
+)
+PRESETS["example-cmos130"] = dataclasses.replace(
+    PRESETS["example-balanced"],
+    name="example-cmos130",
+    description=(
+        "A generic 130 nm-class CMOS card with typical published-order values: 1.2 V core, "
+        "1.5 fF/µm² MIM capacitors, f_T ≈ 40 GHz at moderate inversion, thick-metal spirals of "
+        "Q ≈ 10, ADCs of the 130 nm generation (a few hundred fJ per step, about 2 GS/s per "
+        "channel). " + _INVENTED),
+    supply=1.2,
+    cap_density=1.5e-3,  # 1.5 fF/µm² MIM (1-2 fF/µm² is the published range for this class)
+    gm_over_id=12.0,  # moderate inversion
+    gm_intrinsic_gain=20.0,
+    gm_noise_gamma=1.0,
+    gm_cell_area=1500e-12,
+    gm_max=20e-3,
+    inductor_track_width=8e-6,
+    inductor_track_spacing=2e-6,
+    inductor_q=10.0,
+    adc_fom=250e-15,
+    adc_area_per_rate=0.2e-6 / 1e9,
+    dac_fom=50e-15,
+    memory_energy_per_bit=20e-15,
+    memory_area_per_bit=3.5e-12,
+    mixer_power=10e-3,
+    mixer_area=0.03e-6,
+    chirp_source_power=20e-3,
+    chirp_source_area=0.15e-6,
+    detector_power=2e-3,
+    detector_area=0.01e-6,
+    switch_area=30e-12,
+    f_t=40e9,
+    gm_parasitic_cap=10e-12,  # 2.5 x C_gg/gm = 2.5/(2π·40 GHz): own pole ≈ 16 GHz
+    adc_corner_rate=500e6,
+    adc_max_rate=2.5e9,
+    adc_jitter=200e-15,
+    vco_fom=180.0,
+    chirp_max_fractional_span=0.25,
+    carrier_max_fraction=0.3,
+    mixer_noise_figure=12.0,
+    detector_noise_density=20e-9,
+    inductor_substrate_cap=6.9e-6,
+    gm_spread=0.15,
+    cap_spread=0.10,
+    temperature_min=233.15,
+    temperature_max=398.15,  # -40 °C to 125 °C
 )
 
 DEFAULT_TECHNOLOGY = PRESETS["example-balanced"]
