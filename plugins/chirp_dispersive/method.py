@@ -8,7 +8,6 @@ import warnings
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.signal.windows import tukey
 
 from timescale.data.signal import analytic, resample_to
 from timescale.numerics import costs
@@ -290,6 +289,8 @@ def _gate(t, start, stop, taper):
     m = int(inside.sum())
     if m:
         alpha = min(1.0, 2 * taper / max(stop - start, 1e-300))
+        from scipy.signal.windows import tukey  # imported here: scipy.signal is slow to import
+
         g[inside] = tukey(m, alpha) if m > 2 else 1.0
     return g
 

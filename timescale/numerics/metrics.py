@@ -22,7 +22,6 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.fft as sfft
-from scipy import optimize
 
 from timescale.data import checks as _checks
 from timescale.data.pulse import Pulse
@@ -176,6 +175,8 @@ def _refine_latency(S, df, d0, step):
         act, a, b, sa, x = act[keep], a[keep], b[keep], sa[keep], xn[keep]
     d[act] = x
     for i in np.flatnonzero(~root):  # no sign change: the peak by a bounded scalar search
+        from scipy import optimize  # imported here: slow to import, rarely needed
+
         res = optimize.minimize_scalar(lambda v: -abs(_corr_at(S[i], df, v)), bounds=(lo[i], hi[i]),
                                        method="bounded", options={"xatol": step * 1e-9})
         d[i] = float(res.x)
@@ -439,6 +440,8 @@ def _fit_factor_scalar(y: Pulse, x: Pulse, g: float, orientation: int, span: flo
     def neg_rho(a):
         S, df, d = _best_latency(y, x, a, orientation)
         return -abs(_corr_at(S[0], df, d[0])) / math.sqrt(e * a)
+
+    from scipy import optimize  # imported here: slow to import, rarely needed
 
     res = optimize.minimize_scalar(neg_rho, bounds=(g / span, g * span), method="bounded",
                                    options={"xatol": g * 1e-7})

@@ -6,9 +6,18 @@ from __future__ import annotations
 
 import numpy as np
 
-# Padé-13 coefficients and θ13 of the scaling-and-squaring matrix exponential (Higham,
-# SIAM J. Matrix Anal. Appl. 26(4), 2005); batched here because scipy's expm loops over a
-# stack one matrix at a time.
+# Padé coefficients b_j and the norm bounds θ_m below which the degree-m approximant is accurate
+# to unit roundoff without scaling (Higham, SIAM J. Matrix Anal. Appl. 26(4), 2005, Table 2.3);
+# batched here because scipy's expm loops over a stack one matrix at a time.
+_PADE = {
+    3: (120.0, 60.0, 12.0, 1.0),
+    5: (30240.0, 15120.0, 3360.0, 420.0, 30.0, 1.0),
+    7: (17297280.0, 8648640.0, 1995840.0, 277200.0, 25200.0, 1512.0, 56.0, 1.0),
+    9: (17643225600.0, 8821612800.0, 2075673600.0, 302702400.0, 30270240.0, 2162160.0, 110880.0,
+        3960.0, 90.0, 1.0),
+}
+_THETA = {3: 1.495585217958292e-2, 5: 2.539398330063230e-1, 7: 9.504178996162932e-1,
+          9: 2.097847961257068e0}
 _PADE13 = (64764752532480000.0, 32382376266240000.0, 7771770303897600.0, 1187353796428800.0,
            129060195264000.0, 10559470521600.0, 670442572800.0, 33522128640.0, 1323241920.0,
            40840800.0, 960960.0, 16380.0, 182.0, 1.0)
@@ -18,18 +27,30 @@ _THETA13 = 5.371920351148152
 def expm(M):
     """Matrix exponential of a stack of square matrices, shape (..., n, n).
 
-    Scaling and squaring with the degree-13 Padé approximant (Higham 2005), vectorized over
-    the stack; each matrix gets its own scaling.
+    Scaling and squaring with Padé approximants (Higham 2005), vectorized over the stack: the
+    lowest degree (3, 5, 7, 9) whose bound θ_m holds for every matrix of the stack, else degree
+    13 with each matrix scaled by its own power of two.
     """
     M = np.asarray(M, dtype=float)
     shape = M.shape
     n = shape[-1]
     X = M.reshape((-1, n, n))
     norm = np.abs(X).sum(axis=-2).max(axis=-1)  # 1-norm per matrix
+    eye = np.broadcast_to(np.eye(n), X.shape)
+    top = float(norm.max(initial=0.0))
+    for m, theta in _THETA.items():
+        if top <= theta:
+            b = _PADE[m]
+            X2 = X @ X
+            powers = [eye, X2]
+            for _ in range(m // 2 - 1):
+                powers.append(powers[-1] @ X2)
+            U = X @ sum(b[2 * i + 1] * P for i, P in enumerate(powers))
+            V = sum(b[2 * i] * P for i, P in enumerate(powers))
+            return np.linalg.solve(V - U, V + U).reshape(shape)
     s = np.maximum(0, np.ceil(np.log2(np.maximum(norm, 1e-300) / _THETA13))).astype(int)
     X = X * (0.5 ** s)[:, None, None]
     b = _PADE13
-    eye = np.broadcast_to(np.eye(n), X.shape)
     X2 = X @ X
     X4 = X2 @ X2
     X6 = X4 @ X2

@@ -10,7 +10,7 @@ import numpy as np
 
 from timescale.numerics.lti.discretize import foh_step
 from timescale.numerics.lti.planning import _Plan, _prepare, _stack_systems, _unique
-from timescale.numerics.lti.systems import StateSpace
+from timescale.numerics.lti.systems import Schedule, StateSpace
 
 
 # ------------------------------------------------------------------------------------------
@@ -156,6 +156,52 @@ def simulate(schedule, u, dt: float, *, x0=None, block: int | None = None,
     schedule, u2, x, K = _prepare(schedule, u, x0)
     N = u2.shape[1]
     n = x.shape[1]
+    per_trial = K > 1 and (schedule.boundaries.shape[0] > 1 or u2.shape[0] > 1
+                           or any(s.trials > 1 for s in schedule.systems))
+    kc = _chunk(N, n, block) if per_trial else K
+    thr = _ZERO_INPUT * float(np.max(np.abs(u2)))
+    if kc < K:
+        # trials in chunks: the work arrays of a chunk stay a fraction of the output, and the
+        # per-trial discretizations and lifted blocks are built chunk by chunk
+        y = np.empty((K, N))
+        x_end = np.empty((K, n))
+        for k0 in range(0, K, kc):
+            sl = slice(k0, min(K, k0 + kc))
+            y[sl], x_end[sl] = _simulate(_take(schedule, sl), u2 if u2.shape[0] == 1 else u2[sl],
+                                         x[sl], dt, block, thr)
+        return (y, x_end) if return_state else y
+    y, x = _simulate(schedule, u2, x, dt, block, thr)
+    return (y, x.copy()) if return_state else y
+
+
+#: trials per chunk are chosen so that one chunk's work arrays (about 4 records of N samples per
+#: trial, with n/L states per sample) stay near this size, bytes: below the output of any large
+#: batch, and within the last-level cache's reach for a fast first call
+_CHUNK_BYTES = 24 * 2 ** 20
+
+
+def _chunk(N: int, n: int, block) -> int:
+    L = block or (16 if n <= 24 else 32)
+    per_trial = 8 * N * (4 + 3 * n / L) + 8 * 4 * (n + 2) ** 2 * 2 + 8 * 3 * L * max(n, L)
+    return max(16, int(_CHUNK_BYTES // per_trial))
+
+
+def _take(schedule: Schedule, sl: slice) -> Schedule:
+    """The trials `sl` of a schedule (batched systems and per-trial boundaries sliced)."""
+    def cut(a, nd):
+        return a if a is None or a.ndim < nd else a[sl]
+    systems = tuple(s if s.trials == 1 else
+                    StateSpace(cut(s.A, 3), cut(s.B, 2), cut(s.C, 2), cut(s.D, 1), cut(s.Q, 3))
+                    for s in schedule.systems)
+    b = schedule.boundaries
+    return Schedule(systems, b if b.shape[0] == 1 else b[sl])
+
+
+def _simulate(schedule, u2, x, dt, block, thr):
+    """:func:`simulate` on prepared arrays: u2 (1 or K, N), x (K, n), `thr` the input level
+    treated as zero; returns (y, x_end)."""
+    K, n = x.shape
+    N = u2.shape[1]
     plan = _Plan(schedule, N, dt, K)
     uniq, umap = _unique(schedule)
     As, Bs, Cs, Ds, _, rows = _stack_systems(uniq, K)
@@ -166,10 +212,8 @@ def simulate(schedule, u, dt: float, *, x0=None, block: int | None = None,
     Ku = u2.shape[0]
     uK = np.broadcast_to(u2, (K, N))
     y = np.empty((K, N))
-    thr = _ZERO_INPUT * float(np.max(np.abs(u2)))
     if plan.shared and As.shape[1] == 1:
-        y, x = _simulate_shared(plan, uniq, umap, As, Bs, Cs, Ds, u2, x, L, thr)
-        return (y, x) if return_state else y
+        return _simulate_shared(plan, uniq, umap, As, Bs, Cs, Ds, u2, x, L, thr)
 
     # 1. group the stretches by system; everything the input drives is computed per group
     #    in a few large products (the schedule repeats, so the groups are few)
@@ -318,7 +362,7 @@ def simulate(schedule, u, dt: float, *, x0=None, block: int | None = None,
         for rec in g["recs"]:
             o = rec["off"] * L
             y[:, rec["a"]:rec["b"]] = Y[:, o:o + rec["b"] - rec["a"]]
-    return (y, x.copy()) if return_state else y
+    return y, x
 
 
 def _ranges(starts, lengths):

@@ -42,7 +42,6 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.fft as sfft
-from scipy import signal as ss
 
 from timescale.numerics import costs
 from timescale.plugin import (
@@ -238,7 +237,7 @@ class AnalogMemory(Method):
         def finish(values):
             values = values * droop
             if filt is not None:
-                values = ss.lfilter(filt[0], filt[1], values, axis=-1)
+                values = _signal().lfilter(filt[0], filt[1], values, axis=-1)
             return values
 
         if p.noise:
@@ -300,6 +299,13 @@ class AnalogMemory(Method):
 
 
 # ---- helpers (pure functions, tested on their own) ----------------------------------------------
+
+def _signal():
+    """scipy.signal, imported on first use (it is slow to import; listing methods needs none)."""
+    from scipy import signal
+
+    return signal
+
 
 def _energy_fraction(pulse: Pulse, start: float, stop: float) -> float:
     """Fraction of the pulse's energy ∫x² dt that lies in [start, stop).
@@ -368,8 +374,8 @@ def sample_band_limited(pulse: Pulse, times, *, aperture: float = 0.0) -> np.nda
 
 def _readout_system(kind: str, cutoff: float, order: int):
     if kind == "first-order":
-        return ss.butter(1, 2 * math.pi * cutoff, analog=True)
-    return ss.butter(order, 2 * math.pi * cutoff, analog=True)
+        return _signal().butter(1, 2 * math.pi * cutoff, analog=True)
+    return _signal().butter(order, 2 * math.pi * cutoff, analog=True)
 
 
 def readout_filter(kind: str, cutoff: float, read_rate: float, order: int = 3):
@@ -398,9 +404,9 @@ def readout_filter(kind: str, cutoff: float, read_rate: float, order: int = 3):
     if kind == "ideal":
         return None
     b, a = _readout_system(kind, cutoff, order)
-    A, B, C, D = ss.tf2ss(b, a)
-    Ad, Bd, Cd, Dd, _ = ss.cont2discrete((A, B, C, D), 1.0 / read_rate, method="zoh")
-    num, den = ss.ss2tf(Ad, Bd, Cd, Dd)
+    A, B, C, D = _signal().tf2ss(b, a)
+    Ad, Bd, Cd, Dd, _ = _signal().cont2discrete((A, B, C, D), 1.0 / read_rate, method="zoh")
+    num, den = _signal().ss2tf(Ad, Bd, Cd, Dd)
     # y[k+1] (end of slot k) = Σ num[1:]·u[k…]: dropping the leading (zero, D = 0) term of the
     # numerator advances the output by one slot, so index k is the end of slot k
     return np.asarray(num[0][1:], dtype=float), np.asarray(den, dtype=float)
@@ -412,5 +418,5 @@ def readout_settling_error(kind: str, cutoff: float, read_rate: float, order: in
         return 0.0
     b, a = _readout_system(kind, cutoff, order)
     T = 1.0 / read_rate
-    _, s = ss.step((b, a), T=np.array([0.0, T]))
+    _, s = _signal().step((b, a), T=np.array([0.0, T]))
     return float(abs(1.0 - s[-1]))
