@@ -273,3 +273,20 @@ def test_trials_in_chunks_equal_one_batch_and_bound_memory(monkeypatch):
     tracemalloc.stop()
     np.testing.assert_allclose(chunked, whole, rtol=0, atol=1e-13 * np.max(np.abs(whole)))
     assert peak < 2.5 * chunked.nbytes
+
+
+def test_equal_systems_given_as_distinct_objects_share_one_discretization():
+    # a periodic schedule written out system by system: the planner must see two systems, not 41
+    from timescale.numerics.lti.planning import _unique
+
+    A = np.array([[-2e9, 0.0], [1e9, -1e9]])
+    fast = [lti.StateSpace(A, [2e9, 0.0], [0.0, 1.0]) for _ in range(21)]
+    slow = [lti.StateSpace(A / 2, [1e9, 0.0], [0.0, 1.0]) for _ in range(20)]
+    systems = [s for pair in zip(fast, slow) for s in pair] + [fast[-1]]
+    uniq, umap = _unique(lti.Schedule(tuple(systems), np.arange(1, 41) * 1e-9))
+    assert len(uniq) == 2
+    np.testing.assert_array_equal(umap, np.arange(41) % 2)
+    # a system that differs in one bit of one entry stays apart
+    odd = lti.StateSpace(np.nextafter(A, 0), [2e9, 0.0], [0.0, 1.0])
+    uniq, umap = _unique(lti.Schedule((fast[0], odd, fast[1]), [1e-9, 2e-9]))
+    assert len(uniq) == 2 and umap.tolist() == [0, 1, 0]

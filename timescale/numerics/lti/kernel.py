@@ -72,16 +72,6 @@ class _Lifted:
             P = self._pow[r] = np.linalg.matrix_power(self.Phi_b(self.Ks), r)
         return P
 
-    def krylov(self, P):
-        """(Φ^p G0, Φ^p G1) for p < P as two (P, n) arrays, shared system only (by doubling:
-        log2 P products)."""
-        V = np.stack([self.G0[0], self.G1[0]], axis=1)  # (n, 2p): columns Φ^p G0, Φ^p G1
-        Pw = self.Phi[0]
-        while V.shape[1] < 2 * P:
-            V = np.concatenate([V, Pw @ V], axis=1)
-            Pw = Pw @ Pw
-        return V[:, 0:2 * P:2].T, V[:, 1:2 * P:2].T
-
     @staticmethod
     def apply(M, z):
         """M z for M (1 or K, n, n) and z (K, n)."""
@@ -157,7 +147,7 @@ def simulate(schedule, u, dt: float, *, x0=None, block: int | None = None,
     N = u2.shape[1]
     n = x.shape[1]
     per_trial = K > 1 and (schedule.boundaries.shape[0] > 1 or u2.shape[0] > 1
-                           or any(s.trials > 1 for s in schedule.systems))
+                           or any(s.trials > 1 for s in {id(s): s for s in schedule.systems}.values()))
     kc = _chunk(N, n, block) if per_trial else K
     thr = _ZERO_INPUT * float(np.max(np.abs(u2)))
     if kc < K:
@@ -467,38 +457,20 @@ def _simulate_shared(plan, uniq, umap, As, Bs, Cs, Ds, u2, x, L, thr):
     for key in kdef:
         if key[0] == "s" and key[1] not in lifted:
             lifted[key[1]] = _Lifted(uniq[key[1]], dt, L)
-    longest = {}
-    for key in kdef:
+    MT = []
+    c = np.empty((pk.size, Ku, n))
+    for k, key in enumerate(kdef):
+        sel = np.flatnonzero(pk == k)
         if key[0] == "s":
-            longest[key[1]] = max(longest.get(key[1], 0), key[2])
-    kry = {um: lifted[um].krylov(max(P, 1)) for um, P in longest.items()}
-    MT, W = [], []
-    for key in kdef:
-        if key[0] == "s":
-            _, um, ln = key
-            V0, V1 = kry[um]
-            w = np.zeros((n, ln + 1))
-            if ln:  # x_e = Φ^ln x_a + Σ_k Φ^(e−1−k) (G0 u_k + G1 u_(k+1))
-                w[:, :ln] += V0[ln - 1::-1].T
-                w[:, 1:] += V1[ln - 1::-1].T
-            MT.append(np.ascontiguousarray(lifted[um].power(ln)[0].T))
-            W.append(w)
-        else:
+            lf = lifted[key[1]]
+            MT.append(np.ascontiguousarray(lf.power(key[2])[0].T))
+            c[sel] = _stretch_offsets(lf, u2, pa[sel], key[2])
+        else:  # the input-driven offsets of all pieces of a kind in one product
             P, q0, q1 = _composite_step(As, Bs, key[2], dt)
             MT.append(np.ascontiguousarray(P.T))
-            W.append(np.stack([q0, q1], axis=1))
-    # the input-driven offsets of all pieces of a kind in one product
-    c = np.empty((pk.size, Ku, n))
-    for k, w in enumerate(W):
-        sel = np.flatnonzero(pk == k)
-        idx = pa[sel][:, None] + np.arange(w.shape[1])
-        c[sel] = np.swapaxes(u2[:, idx] @ w.T, 0, 1)
-    # the sequential part: one small product per piece
-    X = np.empty((pk.size, K, n))
-    maps = [MT[k] for k in pk.tolist()]
-    for i, M in enumerate(maps):
-        X[i] = x
-        x = x @ M + c[i]
+            c[sel] = np.swapaxes(u2[:, pa[sel][:, None] + np.arange(2)] @ np.stack([q0, q1]), 0, 1)
+    # the sequential part: the chain of affine maps, states before each
+    X, x = _chain(MT, pk, c, x)
     y = np.empty((K, N))
     if wj:  # outputs at the boundary intervals' first samples
         wp, Jw = np.array(wpos), np.array(wj)
@@ -516,14 +488,13 @@ def _simulate_shared(plan, uniq, umap, As, Bs, Cs, Ds, u2, x, L, thr):
         offs = np.cumsum(nbs) - nbs
         NB = int(nbs.sum())
         samp = _ranges(a, ns)
-        flat = _ranges(offs * L, ns)
+        flat = samp + np.repeat(offs * L - a, ns)
         U = np.zeros((Ku, NB * L))
         U[:, flat] = u2[:, samp]
         U = U.reshape(Ku, NB, L)
-        act = np.flatnonzero(np.any(np.abs(U) > thr, axis=(0, 2)))  # blocks with input
-        RU = np.zeros((Ku, NB, n))
-        if act.size:
-            RU[:, act] = _times_transpose(U[:, act], lf.R)
+        # one product for every block: with the system shared, skipping quiet blocks would cost
+        # more (gathers and scatters) than the products it saves
+        RU = _times_transpose(U, lf.R)
         # block-start states z = x − G1 u, from each stretch's start state
         cur = np.swapaxes(X[pos], 0, 1) - lf.G1[0] * u2[:, a][..., None]
         Z = np.empty((K, NB, n))
@@ -534,10 +505,92 @@ def _simulate_shared(plan, uniq, umap, As, Bs, Cs, Ds, u2, x, L, thr):
             if bi + 1 < nbs.max():
                 cur = cur @ ALT + RU[:, offs + np.minimum(bi, nbs - 1)]
         Y = Z @ lf.O[0].T
-        if act.size:
-            Y[:, act] += _times_transpose(U[:, act], lf.T)
+        Y += _times_transpose(U, lf.T)
         y[:, samp] = Y.reshape(K, NB * L)[:, flat]
     return y, x
+
+
+#: a chain longer than this is first merged pairwise (pieces of a repeating schedule repeat too)
+_CHAIN_DIRECT = 32
+
+
+def _chain(mats, kinds, c, x):
+    """States of the chain x ← x·Mᵀ_k + c_i over its pieces i (kind k = kinds[i]; `mats` holds
+    Mᵀ per kind, c has shape (P, Ku, n), x (K, n)): returns (X, x_end) with X[i] the state
+    before piece i, shape (P, K, n).
+
+    One small product per piece would make the sequential loop the cost of a long periodic
+    schedule. So neighbouring pieces are merged pairwise, level by level, while the pairs
+    repeat (few distinct pairs: one product of matrices per distinct pair, and the offsets of
+    all pairs of a kind in one product); the short chain left is stepped one piece at a time,
+    and the states inside every merged pair follow level by level on the way down, again one
+    product per kind."""
+    mats = list(mats)
+    kinds = np.asarray(kinds, dtype=int)
+    levels = []
+    while kinds.size > _CHAIN_DIRECT:
+        half = kinds.size // 2
+        left, right = kinds[0:2 * half:2], kinds[1:2 * half:2]
+        pairs, inv = np.unique(left * len(mats) + right, return_inverse=True)
+        if pairs.size > max(8, half // 8):  # the pieces do not repeat: merging would not pay
+            break
+        inv = np.reshape(inv, -1)
+        base = len(mats)
+        for code in pairs.tolist():
+            mats.append(mats[code // base] @ mats[code % base])
+        cl, cr = c[0:2 * half:2], c[1:2 * half:2]
+        merged = np.empty((half,) + c.shape[1:])
+        for r in np.unique(right).tolist():
+            sel = np.flatnonzero(right == r)
+            merged[sel] = cl[sel] @ mats[r] + cr[sel]
+        levels.append((left, cl, kinds.size))
+        kinds = np.concatenate([base + inv, kinds[2 * half:]])
+        c = np.concatenate([merged, c[2 * half:]])
+    X = np.empty((kinds.size,) + np.broadcast_shapes(x.shape, c.shape[1:]))
+    if x.shape[0] == 1 and c.shape[1] == 1:  # one record: vector products, less overhead each
+        x1, X1, c1, dot = x[0], X[:, 0], c[:, 0], np.dot
+        for i, k in enumerate(kinds.tolist()):
+            X1[i] = x1
+            x1 = dot(x1, mats[k]) + c1[i]
+        x = x1[None]
+    else:
+        for i, k in enumerate(kinds.tolist()):
+            X[i] = x
+            x = x @ mats[k] + c[i]
+    for left, cl, size in reversed(levels):  # the states inside the merged pairs
+        half = left.size
+        Y = np.empty((size,) + X.shape[1:])
+        Y[0:2 * half:2] = X[:half]
+        for k in np.unique(left).tolist():
+            sel = np.flatnonzero(left == k)
+            Y[2 * sel + 1] = X[sel] @ mats[k] + cl[sel]
+        Y[2 * half:] = X[half:]
+        X = Y
+    return X, x
+
+
+def _stretch_offsets(lf, u2, starts, ln):
+    """``x_e − Φ^ln x_a`` of the stretches of ln samples that start at `starts` (shared system),
+    for every input record: shape (stretches, Ku, n).
+
+    In the lifted variable z = x − G1 u the stretch adds Σ_k Φ^(ln−1−k) B_d u_(a+k); with the
+    input padded with zeros at the front to whole blocks this is the block recursion
+    s ← Φ^L s + R U_b from zero, vectorized over the stretches (no full-length Krylov basis)."""
+    Ku, n, L = u2.shape[0], lf.n, lf.L
+    if ln == 0:
+        return np.zeros((starts.size, Ku, n))
+    nb = -(-ln // L)
+    U = np.zeros((Ku, starts.size, nb * L))
+    U[:, :, nb * L - ln:] = u2[:, starts[:, None] + np.arange(ln)]
+    RU = U.reshape(-1, L) @ lf.R[0].T
+    RU = RU.reshape(Ku, starts.size, nb, n)
+    acc = RU[:, :, 0]
+    ALT = lf.AL[0].T
+    for b in range(1, nb):
+        acc = acc @ ALT + RU[:, :, b]
+    G1 = lf.G1[0]
+    off = acc - (lf.power(ln)[0] @ G1) * u2[:, starts][..., None] + G1 * u2[:, starts + ln][..., None]
+    return np.swapaxes(off, 0, 1)
 
 
 def _window_step(plan, j, As, Bs, umap, rows, dt):
