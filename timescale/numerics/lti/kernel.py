@@ -167,7 +167,7 @@ def simulate(schedule, u, dt: float, *, x0=None, block: int | None = None,
 #: trials per chunk are chosen so that one chunk's work arrays (about 4 records of N samples per
 #: trial, with n/L states per sample) stay near this size, bytes: below the output of any large
 #: batch, and within the last-level cache's reach for a fast first call
-_CHUNK_BYTES = 24 * 2 ** 20
+_CHUNK_BYTES = 8 * 2 ** 20
 
 
 def _chunk(N: int, n: int, block) -> int:
