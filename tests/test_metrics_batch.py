@@ -149,3 +149,16 @@ def test_chirp_z_matches_scipy_and_a_direct_sum():
 def test_fitted_factor_refuses_a_span_below_one():
     with pytest.raises(ValueError, match="span must be >= 1"):
         metrics.fitted_factor(X_IN, X_IN, 1.0, span=0.8)
+
+
+def test_records_in_chunks_give_the_same_metrics(monte_carlo, monkeypatch):
+    from timescale.numerics import metrics as core
+
+    oc = monte_carlo[0]
+    whole = core.fit_reference(oc.pulse, oc.input, 2.0)
+    factor = core.fitted_factor(oc.pulse, oc.input, 2.0, span=1.5)
+    monkeypatch.setattr(core, "_ROWS", 4)  # 6 records: two chunks
+    part = core.fit_reference(oc.pulse, oc.input, 2.0)
+    np.testing.assert_array_equal(part.nrmse, whole.nrmse)
+    np.testing.assert_array_equal(part.latency, whole.latency)
+    np.testing.assert_allclose(core.fitted_factor(oc.pulse, oc.input, 2.0, span=1.5), factor, rtol=0, atol=1e-9)

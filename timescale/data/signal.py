@@ -73,7 +73,11 @@ def chirp_z(values, m: int, theta, phi=0.0) -> np.ndarray:
         pre, kern, post, L = _chirp_plan(n, m, float(theta), float(phi))
     else:
         pre, kern, post, L = _chirp_parts(n, m, theta, phi)
-    out = sfft.ifft(sfft.fft(v * pre, L, axis=-1) * kern, axis=-1)
+    buf = np.zeros(np.broadcast_shapes(v.shape, pre.shape)[:-1] + (L,), dtype=complex)
+    np.multiply(v, pre, out=buf[..., :n])  # zero-padded in place (no padding copy in the FFT)
+    buf = sfft.fft(buf, axis=-1, overwrite_x=True)
+    buf *= kern
+    out = sfft.ifft(buf, axis=-1, overwrite_x=True)
     return out[..., n - 1:n - 1 + m] * post
 
 

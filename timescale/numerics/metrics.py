@@ -156,7 +156,9 @@ def _refine_latency(S, df, d0, step):
     act = np.flatnonzero(root)
     a, b = lo[act], hi[act]  # bracket with slope(a) having the sign of s_lo
     sa = np.sign(s_lo[act])
-    x = 0.5 * (a + b)
+    # the slope's rounding level: once |slope| is below it, the root is found to rounding
+    noise = 16.0 * np.finfo(float).eps * 2.0 * df * (np.abs(S[act]) @ (2.0 * np.pi * df * np.arange(S.shape[-1])))
+    x = d0[act]
     for _ in range(100):
         if not act.size:
             break
@@ -168,11 +170,12 @@ def _refine_latency(S, df, d0, step):
             xn = x - f / fp
         bad = ~np.isfinite(xn) | (xn <= np.minimum(a, b)) | (xn >= np.maximum(a, b))
         xn = np.where(bad, 0.5 * (a + b), xn)
-        tol = 4.0 * np.finfo(float).eps * np.abs(xn) + 1e-30
-        done = (np.abs(xn - x) <= tol) | (f == 0) | (np.abs(b - a) <= tol)
-        d[act] = np.where(f == 0, x, xn)
+        tol = 1e-15 * np.abs(xn) + 1e-30
+        flat = np.abs(f) <= noise
+        done = (np.abs(xn - x) <= tol) | flat | (np.abs(b - a) <= tol)
+        d[act] = np.where(flat, x, xn)
         keep = ~done
-        act, a, b, sa, x = act[keep], a[keep], b[keep], sa[keep], xn[keep]
+        act, a, b, sa, x, noise = act[keep], a[keep], b[keep], sa[keep], xn[keep], noise[keep]
     d[act] = x
     for i in np.flatnonzero(~root):  # no sign change: the peak by a bounded scalar search
         from scipy import optimize  # imported here: slow to import, rarely needed
@@ -186,7 +189,11 @@ def _refine_latency(S, df, d0, step):
 def _coarse_latency(S, df, d_lo, span, oversample=8):
     m = S.shape[-1]
     L = sfft.next_fast_len(oversample * m)
-    c = 2.0 * df * np.real(sfft.ifft(S, n=L, axis=-1)) * L
+    # 2·df·Re Σ_k S_k e^{j2πkj/L} as a real inverse FFT (DC, halved in S, counted twice there)
+    T = np.zeros(S.shape[:-1] + (L // 2 + 1,), dtype=complex)
+    T[..., :m] = S
+    T[..., 0] *= 2.0
+    c = df * L * sfft.irfft(T, n=L, axis=-1, overwrite_x=True)
     j = np.argmax(np.abs(c), axis=-1)
     step = 1.0 / (L * df)
     d = j * step
@@ -234,8 +241,23 @@ def fit_reference(y: Pulse, x: Pulse, factor: float, orientation: int = 1) -> Fi
     x = x.row(0)
     ref = reference(x, a, orientation)
     yu, back = _distinct_rows(y)
-    _, _, lat = _best_latency(yu, x, a, orientation)
-    ys = yu.values
+    rows = yu.values.shape[0]
+    out = np.empty((4, rows))
+    for r0 in range(0, rows, _ROWS):  # records in chunks: work arrays stay a few MB
+        out[:, r0:r0 + _ROWS] = _fit_rows(yu.with_values(yu.values[r0:r0 + _ROWS]), x, a, orientation, ref)
+    out = out[:, back]
+    shape = y.batch_shape
+    return Fit(*(o.reshape(shape) if shape else o[0] for o in out))
+
+
+#: records measured together by fit_reference and fitted_factor (bounds their work arrays)
+_ROWS = 256
+
+
+def _fit_rows(y: Pulse, x: Pulse, a: float, orientation: int, ref: Pulse) -> np.ndarray:
+    """(gain, latency, correlation, nrmse) of every record of `y` (2-D values), shape (4, records)."""
+    _, _, lat = _best_latency(y, x, a, orientation)
+    ys = y.values
     # the shifted reference on y's own grid, time-domain residual (no cancellation for
     # near-perfect outputs); records that need the same zero padding share one interpolant
     nb = np.ceil((np.maximum(0.0, ref.t0 + lat - y.t0) + ref.dt) * ref.rate - 1e-9).astype(int)
@@ -255,9 +277,7 @@ def fit_reference(y: Pulse, x: Pulse, factor: float, orientation: int = 1) -> Fi
         ee = np.einsum("ij,ij->i", err, err)
         corr = np.where((rr > 0) & (yy > 0), np.abs(yr) / np.sqrt(rr * yy), 0.0)
         nr = np.where((rr > 0) & (g != 0), np.sqrt(ee / (g * g * rr)), np.inf)
-    out = np.stack([g, lat, corr, nr])[:, back]
-    shape = y.batch_shape
-    return Fit(*(o.reshape(shape) if shape else o[0] for o in out))
+    return np.stack([g, lat, corr, nr])
 
 
 def nrmse(y: Pulse, x: Pulse, factor: float, orientation: int = 1):
@@ -294,7 +314,11 @@ def fitted_factor(y: Pulse, x: Pulse, guess: float, orientation: int = 1, span: 
         raise ValueError(f"span must be >= 1 (the search runs over [guess/span, guess·span]), got {span!r}")
     x = x.row(0)
     yu, back = _distinct_rows(y)
-    out = _fit_factors(yu, x, g, orientation, span)[back]
+    rows = yu.values.shape[0]
+    out = np.empty(rows)
+    for r0 in range(0, rows, _ROWS):  # records in chunks: work arrays stay a few MB
+        out[r0:r0 + _ROWS] = _fit_factors(yu.with_values(yu.values[r0:r0 + _ROWS]), x, g, orientation, span)
+    out = out[back]
     return out.reshape(y.batch_shape) if y.batch_shape else float(out[0])
 
 
@@ -341,7 +365,8 @@ def _fit_factors(y: Pulse, x: Pulse, g: float, orientation: int, span: float) ->
     f = k * df
     w = 2.0 * np.pi * f
     Y = fourier_at(y, 0.0, df, M)
-    Y[:, 0] *= 0.5  # DC counted once in the one-sided sum
+    L = sfft.next_fast_len(8 * M)
+    T = np.zeros((K, L // 2 + 1), dtype=complex)  # one-sided spectra for real inverse FFTs
 
     # 1. coarse: shared factors, peak |C| over d by one inverse FFT per factor
     alphas = g * span ** np.linspace(-1.0, 1.0, _FACTOR_GRID)
@@ -350,9 +375,8 @@ def _fit_factors(y: Pulse, x: Pulse, g: float, orientation: int, span: float) ->
     for j, aj in enumerate(alphas):
         R = aj * fourier_at(x, 0.0, aj * df, M)
         R = R if orientation == 1 else np.conj(R)
-        S = Y * (np.conj(R) * (k < bins(aj)))
-        L = sfft.next_fast_len(8 * M)
-        c = np.abs(2.0 * df * np.real(sfft.ifft(S, n=L, axis=-1)) * L)
+        np.multiply(Y, np.conj(R) * (k < bins(aj)), out=T[:, :M])
+        c = np.abs(df * L * sfft.irfft(T, n=L, axis=-1))
         jm = np.argmax(c, axis=-1)
         # parabola through the peak and its neighbours: the peak value to a fraction of a percent
         c0, cm, cp = (np.take_along_axis(c, ((jm + s) % L)[:, None], axis=-1)[:, 0] for s in (0, -1, 1))
@@ -364,6 +388,7 @@ def _fit_factors(y: Pulse, x: Pulse, g: float, orientation: int, span: float) ->
         d = (jm + u) / (L * df)
         dgrid[j] = d_lo + np.mod(d - d_lo, 1.0 / df)
         rho[j] = (c0 - 0.25 * (cm - cp) * u) / math.sqrt(aj)
+    Y[:, 0] *= 0.5  # DC counted once in the one-sided sums below
     jb = np.argmax(rho, axis=0)
     rows = np.arange(K)
     a_lo = alphas[np.maximum(jb - 1, 0)]
@@ -383,7 +408,11 @@ def _fit_factors(y: Pulse, x: Pulse, g: float, orientation: int, span: float) ->
     # 2. Newton on (d, α) for every record, with the reference spectrum per record
     t = x.t
     q = np.stack([x.values * (-2j * np.pi * t) ** p for p in range(3)])  # X, dX/df, d²X/df²
-    tol_a = 1e-11 * g
+    weights = np.stack([np.ones(M), 1j * w, -w * w], axis=1)
+    # Newton converges quadratically: once a step is below ~√(tolerance) the step itself leaves an
+    # error of its square, far below the search tolerance (1e-7 of the guess), so it is taken
+    # without another evaluation
+    tol_a, last_a, last_d = 1e-11 * g, 3e-6 * g, 1e-3 * step
     act = np.arange(K)
     for _ in range(60):
         if not act.size:
@@ -398,12 +427,9 @@ def _fit_factors(y: Pulse, x: Pulse, g: float, orientation: int, span: float) ->
             R, R1, R2 = np.conj(R), np.conj(R1), np.conj(R2)
         band = k < bins(al)[:, None]
         Z = Y[act] * np.exp(1j * np.multiply.outer(dd, w)) * band
-        ZR, ZR1 = Z * R, Z * R1
-        C = np.real(ZR.sum(-1))
-        Cd = np.real((ZR * (1j * w)).sum(-1))
-        Cdd = -np.real((ZR * (w * w)).sum(-1))
-        Ca = np.real(ZR1.sum(-1))
-        Cda = np.real((ZR1 * (1j * w)).sum(-1))
+        # the six sums Σ_k Z R^(q) (jω)^p as three products with the weights [1, jω, −ω²]
+        C, Cd, Cdd = np.real((Z * R) @ weights).T
+        Ca, Cda = np.real((Z * R1) @ weights[:, :2]).T
         Caa = np.real((Z * R2).sum(-1))
         with np.errstate(divide="ignore", invalid="ignore"):
             pd, pa = Cd / C, Ca / C - 0.5 / al
@@ -424,7 +450,7 @@ def _fit_factors(y: Pulse, x: Pulse, g: float, orientation: int, span: float) ->
         with np.errstate(divide="ignore", invalid="ignore"):
             d_guard = np.where(pdd < 0, -(pd + pda * (a_new - al)) / pdd, 0.0)
         d_new = dd + np.clip(np.where(ok, dn, d_guard), -step, step)
-        done = (newton & (np.abs(an) <= tol_a) & (np.abs(dn) <= 1e-6 * step)) | (hi_a - lo_a <= tol_a)
+        done = (ok & (np.abs(an) <= last_a) & (np.abs(dn) <= last_d)) | (hi_a - lo_a <= tol_a)
         a_new = np.where(done & newton, al + an, a_new)
         alpha[act], d[act], a_lo[act], a_hi[act] = a_new, d_new, lo_a, hi_a
         act = act[~done]
