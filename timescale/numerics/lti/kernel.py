@@ -382,11 +382,12 @@ def _simulate_shared(plan, uniq, umap, As, Bs, Cs, Ds, u2, x, L, thr):
     """:func:`simulate` when every trial shares the systems and the boundaries.
 
     Each piece of the record (a stretch of one system, or a sample interval that holds
-    boundaries) is an affine map ``x_end = M x_start + W u[start:end + 1]``. Pieces of one
-    kind (same system, length, sub-sample offsets) share M and W, so a periodic schedule
-    needs a few kinds: the offsets of all pieces of a kind are one product over their stacked
-    inputs, and the sequential part is one small product per piece. The outputs inside the
-    stretches then come per system in lifted form, vectorized over the stretches.
+    boundaries) is an affine map ``x_end = M x_start + c``. Pieces of one kind (same system,
+    length, sub-sample offsets) share M, so a periodic schedule needs a few kinds: the offsets
+    of all stretches of a kind come from one block recursion vectorized over them
+    (:func:`_stretch_offsets`), those of the boundary intervals from one product per kind, and
+    the chain of maps is stepped by :func:`_chain`. The outputs inside the stretches then come
+    per system in lifted form, vectorized over the stretches.
 
     The sub-step edges of a boundary interval are taken to 1e-9 of dt, which absorbs the
     rounding of instants computed as k·dt (relative 1e-16 of t, i.e. up to ~1e-11 of dt at
