@@ -118,6 +118,8 @@ def _cross_spectrum(y: Pulse, x: Pulse, factor: float, orientation: int):
     df = 1.0 / span
     f_max = min(y.rate, x.rate / a) / 2.0
     m = max(2, int(math.floor(f_max / df)))
+    # bins where the reference spectrum is negligible for this factor add nothing to any sum
+    m = min(m, max(2, int(math.floor(_spectrum_edge(x.row(0)) / (a * df))) + 2))
     Y = fourier_at(y, 0.0, df, m)
     X = fourier_at(x.row(0), 0.0, a * df, m) * a
     R = X if orientation == 1 else np.conj(X)
@@ -333,12 +335,17 @@ _NEGLIGIBLE_SPECTRUM = 2.0 ** -40
 
 def _spectrum_edge(x: Pulse) -> float:
     """Frequency above which |X(f)| stays below _NEGLIGIBLE_SPECTRUM of its peak, Hz (sampled 8×
-    finer than the spectrum's own resolution 1/duration, with one sample of margin)."""
-    df = 1.0 / (8.0 * x.duration)
-    m = int(math.floor(x.rate / 2 / df)) + 1
-    mag = np.abs(fourier_at(x, 0.0, df, m))
-    above = np.flatnonzero(mag > _NEGLIGIBLE_SPECTRUM * mag.max())
-    return min(x.rate / 2, (above[-1] + 2) * df) if above.size else x.rate / 2
+    finer than the spectrum's own resolution 1/duration, with one sample of margin); kept on
+    the pulse, which is immutable."""
+    edge = x._cache.get("metrics_spectrum_edge")
+    if edge is None:
+        df = 1.0 / (8.0 * x.duration)
+        m = int(math.floor(x.rate / 2 / df)) + 1
+        mag = np.abs(fourier_at(x, 0.0, df, m))
+        above = np.flatnonzero(mag > _NEGLIGIBLE_SPECTRUM * mag.max())
+        edge = x._cache["metrics_spectrum_edge"] = \
+            min(x.rate / 2, (above[-1] + 2) * df) if above.size else x.rate / 2
+    return edge
 
 
 def _fit_factors(y: Pulse, x: Pulse, g: float, orientation: int, span: float) -> np.ndarray:
