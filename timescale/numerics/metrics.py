@@ -496,10 +496,13 @@ def jitter_snr_db(pulse: Pulse, sigma_t: float):
         RMS sampling-clock jitter, s.
     """
     s = _checks.positive("sigma_t", sigma_t)
-    v = pulse.values
-    xdot = derivative(v, pulse.rate)
-    ratio = np.sum(v * v, axis=-1) / np.sum(xdot * xdot, axis=-1)
-    out = 10.0 * np.log10(ratio / (s * s))
+    v = pulse.values.reshape(-1, pulse.n)
+    ratio = np.empty(v.shape[0])
+    for r0 in range(0, v.shape[0], _ROWS):  # records in chunks: the derivative's arrays stay small
+        vc = v[r0:r0 + _ROWS]
+        xdot = derivative(vc, pulse.rate)
+        ratio[r0:r0 + _ROWS] = np.einsum("ij,ij->i", vc, vc) / np.einsum("ij,ij->i", xdot, xdot)
+    out = (10.0 * np.log10(ratio / (s * s))).reshape(pulse.batch_shape)
     return float(out) if np.ndim(out) == 0 else out
 
 
