@@ -5,6 +5,7 @@ All quantities are SI. Each function states its source in Notes.
 
 from __future__ import annotations
 
+import itertools
 import math
 
 from timescale.data import checks as _checks
@@ -456,7 +457,7 @@ def phase_noise_jitter(frequency: float, offsets, phase_noise_dbc) -> float:
     f0 = _checks.positive("frequency", frequency)
     f = [_checks.positive("offsets", v) for v in offsets]
     ell = [10.0 ** (_checks.finite("phase_noise_dbc", v) / 10.0) for v in phase_noise_dbc]
-    if len(f) != len(ell) or len(f) < 2 or any(b <= a for a, b in zip(f, f[1:])):
+    if len(f) != len(ell) or len(f) < 2 or any(b <= a for a, b in itertools.pairwise(f)):
         raise ValueError("offsets must be >= 2 increasing frequencies, one per phase_noise_dbc value")
     area = 0.0
     for f1, f2, l1, l2 in zip(f, f[1:], ell, ell[1:]):
