@@ -65,8 +65,9 @@ class ResampleParams:
     full_scale: float = param(0.0, units="V", doc="ADC peak input; 0 picks 1.25 x the pulse peak")
     jitter: float = param(0.0, units="s", doc="rms sampling-clock jitter; below the card's floor "
                                               "adc_jitter the floor is used")
-    noise: bool = param(True, doc="with capture: add the converters' thermal noise and the card's jitter "
-                                  "floor to the waveform (off: quantization and the given jitter only)")
+    converter_noise: bool = param(True, doc="with capture: add the converters' thermal noise and the card's "
+                                            "jitter floor to the waveform (off: quantization and the given "
+                                            "jitter only)")
     dac: str = param("zoh", doc="replay: zero-order hold + filter, or ideal band-limited",
                      choices=("zoh", "ideal"))
     filter_order: int = param(4, doc="order of the Butterworth reconstruction filter")
@@ -201,19 +202,19 @@ class Resample(Method):
         f_c, n = design.capture_rate, design.samples
         v = resample_to(pulse, f_c, n=n).values
         codes = np.broadcast_to(v, (trials, n)).copy()
-        sigma_t = design.jitter if params.noise else params.jitter
+        sigma_t = design.jitter if params.converter_noise else params.jitter
         if sigma_t > 0:
             # x(t + δ) ≈ x + δ·ẋ + δ²·ẍ/2 (band-limited derivatives; δ ≪ 1/bandwidth)
             d1 = resample_to(pulse.with_values(derivative(pulse.values, pulse.rate)), f_c, n=n).values
             d2 = resample_to(pulse.with_values(derivative(pulse.values, pulse.rate, 2)), f_c, n=n).values
             delta = rng.normal(0.0, sigma_t, size=(trials, n))
             codes = codes + delta * d1 + 0.5 * delta * delta * d2
-        if params.noise:
+        if params.converter_noise:
             codes = codes + rng.normal(0.0, design.adc_noise, size=(trials, n))
         q = costs.quantizer_step(design.full_scale, design.bits)
         top = 2 ** (design.bits - 1)
         codes = np.clip(np.round(codes / q), -top, top - 1) * q
-        if params.noise:  # the DAC's own noise rides on every replayed sample
+        if params.converter_noise:  # the DAC's own noise rides on every replayed sample
             codes = codes + rng.normal(0.0, design.dac_noise, size=(trials, n))
         clean = v[None, :]
         f_r = design.replay_rate

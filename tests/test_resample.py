@@ -44,7 +44,7 @@ def test_capture_jitter_error_matches_the_jitter_snr_formula():
     # against the jitter-free output (a fit would absorb the part of it that looks like a delay).
     x = gaussian(rate=80e9)
     sigma_t = 2e-12
-    kw = dict(capture=True, bits=24, oversampling=6.0, dac="ideal", noise=False)
+    kw = dict(capture=True, bits=24, oversampling=6.0, dac="ideal", converter_noise=False)
     clean = timescale.stretch(x, "resample", 2.0, **kw).pulse.values[0]
     noisy = timescale.stretch(x, "resample", 2.0, jitter=sigma_t, trials=400, seed=7, **kw).pulse.values
     measured = 10 * math.log10(np.sum(clean ** 2) / np.mean(np.sum((noisy - clean) ** 2, axis=-1)))
@@ -57,7 +57,7 @@ def test_quantization_noise_follows_lsb_squared_over_12():
     # where the signal spans many steps. Compared sample by sample with a 24-bit capture.
     x = timescale.Pulse.gaussian(sigma=600e-12, center=3e-9, duration=6e-9, rate=40e9)
     bits, fs = 8, 1.25  # full scale above the peak: no clipping
-    kw = dict(capture=True, full_scale=fs, oversampling=40.0, dac="ideal", noise=False)
+    kw = dict(capture=True, full_scale=fs, oversampling=40.0, dac="ideal", converter_noise=False)
     y = timescale.stretch(x, "resample", 1.0, bits=bits, **kw).pulse.values[0]
     fine = timescale.stretch(x, "resample", 1.0, bits=24, **kw).pulse.values[0]
     q = 2 * fs / 2 ** bits
@@ -69,7 +69,7 @@ def test_quantization_noise_follows_lsb_squared_over_12():
 
 def test_zero_order_hold_replay_is_close_but_not_exact():
     x = gaussian(rate=80e9)
-    out = timescale.stretch(x, "resample", 4.0, capture=True, bits=14, oversampling=4.0, noise=False)
+    out = timescale.stretch(x, "resample", 4.0, capture=True, bits=14, oversampling=4.0, converter_noise=False)
     fit = metrics.fit_reference(out.pulse, x, 4.0)
     assert 1e-4 < fit.nrmse[0] < 0.2
     # the replay filter and hold add delay beyond the record latency
@@ -83,7 +83,7 @@ def test_zoh_replay_matches_scipy_lsim_of_the_staircase():
     # linearly between the same points: both resolve the hold finely (measured gap ~8e-5 of the
     # peak); a wrong filter order, cutoff or hold length moves the output by percents.
     x = gaussian(rate=80e9)
-    kw = dict(capture=True, bits=14, oversampling=4.0, noise=False)
+    kw = dict(capture=True, bits=14, oversampling=4.0, converter_noise=False)
     zoh = timescale.stretch(x, "resample", 4.0, **kw)
     codes = timescale.stretch(x, "resample", 4.0, dac="ideal", **kw).pulse.values[0]
     y = zoh.pulse

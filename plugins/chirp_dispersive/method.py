@@ -406,7 +406,7 @@ class ChirpDispersive(Method):
     name = "chirp-dispersive"
     summary = "chirped carrier + dispersive line (or a time lens): rescale the envelope by dispersion"
     Params = ChirpParams
-    version = "0.1.0"
+    version = "0.2.0"
     # factor 1 bypasses the line (exact); the inverted lens at factor 1 images through a full
     # line-lens-line chain whose sampled chirps leave errors near 1e-5
     identity_tolerance = 1e-4
