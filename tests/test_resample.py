@@ -183,4 +183,4 @@ def test_warnings_for_aliasing_and_clipping():
         out = timescale.stretch(x, "resample", 2.0, oversampling=0.7)
     assert any("aliases" in w for w in out.warnings)  # also kept on the outcome
     with pytest.warns(DesignWarning, match="clips"):
-        timescale.stretch(x, "resample", 2.0, capture=True, full_scale=0.5)
+        timescale.stretch(x, "resample", 2.0, capture=True, full_scale=0.5, bits=8)

@@ -161,7 +161,7 @@ class AnalogMemory(Method):
     name = "analog-memory"
     summary = "sampled analog memory: write a capacitor bank fast, read it slowly (finite record)"
     Params = AnalogMemoryParams
-    version = "0.2.0"
+    version = "0.1.0"
     identity_tolerance = 1e-6
     factor_tolerance = 1e-3
 
