@@ -200,20 +200,17 @@ class Resample(Method):
             out = Pulse(pulse.values, pulse.rate / a, t_out0, pulse.units, f"{pulse.name} resampled")
             return Simulation(pulse=out, path="exact band-limited scaling", metrics=metrics)
         f_c, n = design.capture_rate, design.samples
-        v = resample_to(pulse, f_c, n=n).values
-        codes = np.broadcast_to(v, (trials, n)).copy()
         sigma_t = design.jitter if params.converter_noise else params.jitter
+        cap = _Capture(pulse, f_c, n, sigma_t)
+        v = cap.v
+        codes = np.broadcast_to(v, (trials, n)).copy()
         if sigma_t > 0:
             # x(t + δ) ≈ x + δ·ẋ + δ²·ẍ/2 (band-limited derivatives; δ ≪ 1/bandwidth)
-            d1 = resample_to(pulse.with_values(derivative(pulse.values, pulse.rate)), f_c, n=n).values
-            d2 = resample_to(pulse.with_values(derivative(pulse.values, pulse.rate, 2)), f_c, n=n).values
             delta = rng.normal(0.0, sigma_t, size=(trials, n))
-            codes = codes + delta * d1 + 0.5 * delta * delta * d2
+            codes = codes + delta * cap.d1 + 0.5 * delta * delta * cap.d2
         if params.converter_noise:
             codes = codes + rng.normal(0.0, design.adc_noise, size=(trials, n))
-        q = costs.quantizer_step(design.full_scale, design.bits)
-        top = 2 ** (design.bits - 1)
-        codes = np.clip(np.round(codes / q), -top, top - 1) * q
+        codes = _quantize(codes, design.full_scale, design.bits)
         if params.converter_noise:  # the DAC's own noise rides on every replayed sample
             codes = codes + rng.normal(0.0, design.dac_noise, size=(trials, n))
         clean = v[None, :]
@@ -279,16 +276,22 @@ def _converter_sndr(bits: int) -> float:
     return costs.sndr_from_enob(bits) - 10.0 * math.log10(2.0)
 
 
+def _quantize(v, full_scale: float, bits: int):
+    """Mid-tread quantizer of `bits` bits over ±`full_scale`, codes clipped to its range."""
+    q = costs.quantizer_step(full_scale, bits)
+    top = 2 ** (bits - 1)
+    return np.clip(np.round(v / q), -top, top - 1) * q
+
+
 class _Capture:
     """The ideal capture of a pulse and its jitter sensitivity (computed once per design)."""
 
     def __init__(self, pulse: Pulse, f_c: float, n: int, jitter: float):
         self.v = resample_to(pulse, f_c, n=n).values
         if jitter > 0:
-            d1 = resample_to(pulse.with_values(derivative(pulse.values, pulse.rate)), f_c, n=n).values
-            d2 = resample_to(pulse.with_values(derivative(pulse.values, pulse.rate, 2)), f_c, n=n).values
-            # var of δ·ẋ + δ²·ẍ/2 for δ ~ N(0, σ²): σ²ẋ² + σ⁴ẍ²/2
-            self.jitter_var = jitter ** 2 * d1 ** 2 + 0.5 * jitter ** 4 * d2 ** 2
+            self.d1 = resample_to(pulse.with_values(derivative(pulse.values, pulse.rate)), f_c, n=n).values
+            self.d2 = resample_to(pulse.with_values(derivative(pulse.values, pulse.rate, 2)), f_c, n=n).values
+            self.jitter_var = costs.jitter_error_variance(jitter, self.d1, self.d2)
         else:
             self.jitter_var = np.zeros(n)
         self.peak_index = int(np.argmax(np.abs(self.v)))
@@ -299,8 +302,7 @@ def _noise(cap: _Capture, bits: int, full_scale: float, gain2) -> dict:
     noise of ADC and DAC (each equal to q/√12), jitter; the output variance at the peak through
     the replay (`gain2`: squared response of one held sample on the replay grid)."""
     q = costs.quantizer_step(full_scale, bits)
-    top = 2 ** (bits - 1)
-    err = np.clip(np.round(cap.v / q), -top, top - 1) * q - cap.v
+    err = _quantize(cap.v, full_scale, bits) - cap.v
     busy = np.abs(cap.v) >= q  # where the quantizer is exercised (Bennett's condition)
     quant2 = float(np.mean(err[busy] ** 2)) if busy.any() else float(np.mean(err ** 2))
     thermal2 = q * q / 12.0

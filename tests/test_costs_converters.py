@@ -186,3 +186,14 @@ def test_spiral_self_resonance_yue_wong_example():
     assert 0.5 * length * 15e-6 * c_sub == pytest.approx(93.9e-15, abs=0.1e-15)
     assert costs.spiral_self_resonance(2.112e-9, length, 15e-6, c_sub, 23.3e-15) == pytest.approx(10.1e9, rel=0.01)
     assert costs.spiral_self_resonance(2.112e-9, length, 15e-6, c_sub / 2, 23.3e-15) == pytest.approx(13.1e9, rel=0.01)
+
+
+def test_jitter_error_variance_reproduces_the_sine_jitter_line():
+    # a full-scale sine sampled with rms jitter σ: ⟨σ²ẋ²⟩ = σ²(2πfA)²/2 against A²/2 gives
+    # SNR = −20·log10(2πfσ) (Kester, Analog Devices MT-008); the σ⁴ẍ²/2 term is 2nd order
+    f, a, sigma = 1e9, 0.7, 100e-15
+    t = np.arange(4000) / 4000 / f
+    w = 2 * math.pi * f
+    var = costs.jitter_error_variance(sigma, a * w * np.cos(w * t), -a * w * w * np.sin(w * t))
+    snr = 10 * math.log10(0.5 * a * a / np.mean(var))
+    assert snr == pytest.approx(costs.aperture_jitter_snr_db(f, sigma), abs=1e-4)

@@ -695,7 +695,7 @@ class ChirpDispersive(Method):
         sigma = abs(1.0 - design.magnification) * max(params.chirp_jitter, design.source_jitter)
         d1 = np.gradient(y, 1.0 / rate)
         d2 = np.gradient(d1, 1.0 / rate)
-        rms = math.sqrt(thermal ** 2 + sigma ** 2 * d1[k] ** 2 + 0.5 * sigma ** 4 * d2[k] ** 2)
+        rms = math.sqrt(thermal ** 2 + costs.jitter_error_variance(sigma, d1[k], d2[k]))
         return {
             "noise_rms": Metric(rms, "V", "output rms noise at the output peak"),
             "snr_db": Metric(20 * math.log10(peak / rms), "dB", "output peak over rms noise"),

@@ -8,6 +8,8 @@ from __future__ import annotations
 import itertools
 import math
 
+import numpy as np
+
 from timescale.data import checks as _checks
 
 __all__ = [
@@ -32,6 +34,7 @@ __all__ = [
     "adc_power",
     "schreier_frontier",
     "aperture_jitter_snr_db",
+    "jitter_error_variance",
     "quantizer_step",
     "quantization_noise",
     "noise_from_figure",
@@ -340,6 +343,27 @@ def aperture_jitter_snr_db(frequency: float, jitter: float) -> float:
     """
     return -20.0 * math.log10(2.0 * math.pi * _checks.positive("frequency", frequency)
                               * _checks.positive("jitter", jitter))
+
+
+def jitter_error_variance(jitter: float, slope, curvature):
+    """Variance of the error of sampling x at t + δ, δ ~ N(0, σ²): σ²·ẋ² + σ⁴·ẍ²/2, V².
+
+    From x(t + δ) ≈ x + δ·ẋ + δ²·ẍ/2 (E[δ²] = σ², Var[δ²] = 2σ⁴). Works on arrays.
+
+    Parameters
+    ----------
+    jitter : float
+        RMS timing error σ, s.
+    slope, curvature : float or ndarray
+        ẋ (V/s) and ẍ (V/s²) at the sampling instants.
+
+    Notes
+    -----
+    First-order term as in W. Kester, Analog Devices MT-008 (a sine at f gives
+    SNR = −20·log10(2πfσ)); the second-order term keeps it non-zero at a peak.
+    """
+    s2 = _checks.nonnegative("jitter", jitter) ** 2
+    return s2 * np.square(slope) + 0.5 * s2 * s2 * np.square(curvature)
 
 
 def quantizer_step(full_scale: float, bits: float) -> float:
