@@ -290,3 +290,29 @@ def test_equal_systems_given_as_distinct_objects_share_one_discretization():
     odd = lti.StateSpace(np.nextafter(A, 0), [2e9, 0.0], [0.0, 1.0])
     uniq, umap = _unique(lti.Schedule((fast[0], odd, fast[1]), [1e-9, 2e-9]))
     assert len(uniq) == 2 and umap.tolist() == [0, 1, 0]
+
+
+def test_steps_sharing_one_block_equal_separate_van_loan_exponentials():
+    # every step of a switched schedule is expm(h·M0) of one block (the scaled system's too);
+    # checked against scipy.linalg.expm of the Van Loan block, one matrix at a time
+    from timescale.numerics.lti.discretize import FohFamily
+
+    rng = np.random.default_rng(3)
+    n, K = 6, 4
+    A = -3e10 * np.eye(n) + 8e9 * rng.standard_normal((K, n, n))
+    B = 1e10 * rng.standard_normal((K, n))
+    fam = FohFamily(A, B, 2.5e-12)
+
+    def van_loan(a, b, h):
+        M = np.zeros((n + 2, n + 2))
+        M[:n, :n], M[:n, n], M[n, n + 1] = a * h, b * h, 1.0
+        E = sla.expm(M)
+        return E[:n, :n], E[:n, n] - E[:n, n + 1], E[:n, n + 1]
+
+    for h, scale in ((2.5e-12, 1.0), (np.array([0.0, 1e-13, 2e-12, 4e-11]), 1.0), (2.5e-12, 0.5)):
+        got = fam.step(np.asarray(h) * scale)
+        hs = np.broadcast_to(h, (K,))
+        for k in range(K):
+            want = van_loan(A[k] * scale, B[k] * scale, hs[k])
+            for g, w in zip(got, want):
+                np.testing.assert_allclose(g[k], w, rtol=0, atol=1e-13 * max(1.0, np.max(np.abs(w))))

@@ -8,7 +8,7 @@ import math
 
 import numpy as np
 
-from timescale.numerics.lti.discretize import foh_step
+from timescale.numerics.lti.discretize import FohFamily, foh_step
 from timescale.numerics.lti.planning import _Plan, _prepare, _stack_systems, _unique
 from timescale.numerics.lti.systems import Schedule, StateSpace
 
@@ -24,9 +24,9 @@ class _Lifted:
     block-start state is ``Φ^L z_b + R U_b``.
     """
 
-    def __init__(self, system: StateSpace, dt: float, L: int):
+    def __init__(self, system: StateSpace, dt: float, L: int, steps=None):
         A, B, C, D, _ = system.batched(1)
-        Phi, G0, G1 = foh_step(A, B, dt)
+        Phi, G0, G1 = foh_step(A, B, dt) if steps is None else steps
         Bd = np.einsum("kij,kj->ki", Phi, G1) + G0
         Dd = np.einsum("ki,ki->k", *np.broadcast_arrays(C, G1)) + D  # C may be per trial
         self.Phi, self.G0, self.G1, self.C, self.Dd, self.Bd = Phi, G0, G1, C, Dd, Bd
@@ -207,6 +207,7 @@ def _simulate(schedule, u2, x, dt, block, thr):
 
     # 1. group the stretches by system; everything the input drives is computed per group
     #    in a few large products (the schedule repeats, so the groups are few)
+    fams = _Families(As, Bs, dt)
     lifted, groups, recs = {}, {}, []
     for piece in plan.pieces:
         if piece[0] != "stretch":
@@ -215,7 +216,7 @@ def _simulate(schedule, u2, x, dt, block, thr):
         _, a, b, m = piece
         um = int(umap[m])
         if um not in lifted:
-            lifted[um] = _Lifted(uniq[um], dt, L)
+            lifted[um] = _Lifted(uniq[um], dt, L, steps=fams.step(um, dt))
         g = groups.setdefault(um, {"nb": 0, "recs": []})
         Ns = b - a
         nb = -(-Ns // L)
@@ -307,7 +308,7 @@ def _simulate(schedule, u2, x, dt, block, thr):
         else:
             _, a, b = piece
             for j in range(a, b):  # the few intervals that hold a boundary
-                m_lo, P, q0, q1 = _window_step(plan, j, As, Bs, umap, rows, dt)
+                m_lo, P, q0, q1 = _window_step(plan, j, As, Bs, umap, rows, dt, fams)
                 Ms.append(P)
                 cs.append(q0 * uK[:, j:j + 1] + q1 * uK[:, j + 1:j + 2])
                 after.append(("sample", m_lo, j))
@@ -594,7 +595,46 @@ def _stretch_offsets(lf, u2, starts, ln):
     return np.swapaxes(off, 0, 1)
 
 
-def _window_step(plan, j, As, Bs, umap, rows, dt):
+class _Families:
+    """Which distinct systems are scalings (s·A, s·B) of one another (a switched or ramped
+    schedule: every segment scales the first), so that their exact steps share one
+    :class:`FohFamily`; `step` returns None where the systems asked for are of different
+    families."""
+
+    def __init__(self, As, Bs, dt):
+        U = As.shape[0]
+        self.base = np.arange(U)
+        self.scale = np.ones(U)
+        self.As, self.Bs, self.dt, self._fam = As, Bs, dt, {}
+        for j in range(1, U):
+            for i in range(j):
+                if self.base[i] != i:
+                    continue
+                Ai = As[i]
+                k = np.unravel_index(np.argmax(np.abs(Ai)), Ai.shape)
+                if Ai[k] == 0:
+                    continue
+                s = As[j][k] / Ai[k]
+                # equal to rounding: A_j = A_i·(1/α) as StateSpace.scaled computes it
+                if s > 0 and np.allclose(As[j], s * Ai, rtol=1e-14, atol=0) and \
+                        np.allclose(Bs[j], s * Bs[i], rtol=1e-14, atol=0):
+                    self.base[j], self.scale[j] = i, s
+                    break
+
+    def step(self, um, h):
+        """(Phi, G0, G1) of systems `um` (an index, or one per trial) over steps `h`, or None."""
+        um = np.asarray(um)
+        b = self.base[um]
+        if b.ndim and np.any(b != b.flat[0]):
+            return None
+        b0 = int(b.flat[0]) if b.ndim else int(b)
+        fam = self._fam.get(b0)
+        if fam is None:
+            fam = self._fam[b0] = FohFamily(self.As[b0], self.Bs[b0], self.dt)
+        return fam.step(np.asarray(h, dtype=float) * self.scale[um])
+
+
+def _window_step(plan, j, As, Bs, umap, rows, dt, fams=None):
     """Composite exact step over sample interval j, which holds one or more boundaries:
     returns (m_lo, P, q0, q1) with x[j+1] = P x[j] + q0 u[j] + q1 u[j+1] and m_lo the segment
     (per trial) at the interval's start."""
@@ -606,7 +646,8 @@ def _window_step(plan, j, As, Bs, umap, rows, dt):
     q1 = np.zeros((K, n))
     for m, sa, sb in subs:
         um = umap[m]
-        Phi, G0, G1 = foh_step(As[um, rows], Bs[um, rows], sb - sa)
+        steps = None if fams is None else fams.step(um, sb - sa)
+        Phi, G0, G1 = foh_step(As[um, rows], Bs[um, rows], sb - sa) if steps is None else steps
         wa, wb = (sa / dt)[:, None], (sb / dt)[:, None]
         P = Phi @ P
         q0 = np.einsum("kij,kj->ki", Phi, q0) + G0 * (1 - wa) + G1 * (1 - wb)
