@@ -162,3 +162,17 @@ def test_records_in_chunks_give_the_same_metrics(monte_carlo, monkeypatch):
     np.testing.assert_array_equal(part.nrmse, whole.nrmse)
     np.testing.assert_array_equal(part.latency, whole.latency)
     np.testing.assert_allclose(core.fitted_factor(oc.pulse, oc.input, 2.0, span=1.5), factor, rtol=0, atol=1e-9)
+
+
+def test_fitted_factor_stays_in_its_range_when_the_best_lies_beyond():
+    # a sixth-order Bessel–Thomson filter spreads a 200 ps pulse far more than 2×: the best
+    # factor lies above guess·span, so the search ends on its upper bound, like the reference
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        oc = timescale.stretch(X_IN, "switched-bandwidth", 2.0, trials=2, seed=1, prototype="bessel", order=6)
+    got = metrics.fitted_factor(oc.pulse, X_IN, 2.0, span=1.5)
+    assert np.all(got <= 3.0) and np.all(got >= 2.0 / 1.5)
+    want = reference_factor(oc.pulse.row(0), X_IN, 2.0)
+    assert got[0] == pytest.approx(want, rel=0, abs=1e-6 * 2.0)

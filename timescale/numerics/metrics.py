@@ -458,7 +458,6 @@ def _fit_factors(y: Pulse, x: Pulse, g: float, orientation: int, span: float) ->
             d_guard = np.where(pdd < 0, -(pd + pda * (a_new - al)) / pdd, 0.0)
         d_new = dd + np.clip(np.where(ok, dn, d_guard), -step, step)
         done = (ok & (np.abs(an) <= last_a) & (np.abs(dn) <= last_d)) | (hi_a - lo_a <= tol_a)
-        a_new = np.where(done & newton, al + an, a_new)
         alpha[act], d[act], a_lo[act], a_hi[act] = a_new, d_new, lo_a, hi_a
         act = act[~done]
         print("iter", act.size, M, act[:1], an[~done][:1], dn[~done][:1]/step, ok[~done][:1], (hi_a-lo_a)[~done][:1]) if _DEBUG else None
