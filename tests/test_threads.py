@@ -2,7 +2,6 @@
 libraries on one thread each by default (threadpoolctl reports what the libraries themselves
 say), and the limit can be changed."""
 
-import dataclasses
 import os
 
 import numpy as np
@@ -10,39 +9,29 @@ import pytest
 from threadpoolctl import threadpool_info
 
 import timescale as ts
-from timescale.plugin import Bill, Design, Method, Metric, Simulation, param
+from timescale.plugin import Metric, Simulation
 from timescale.runner import threads
 from timescale.runner.execute import run_suite
 from timescale.runner.suite import Suite
+from toy_methods import Ideal
 
 
-@dataclasses.dataclass(frozen=True)
-class _Params:
-    knob: float = param(1.0, doc="unused")
-
-
-class BlasThreads(Method):
+class BlasThreads(Ideal):
     """Reports, as a metric, the most threads any loaded BLAS/OpenMP library may use."""
 
     name = "test-blas-threads"
     summary = "reports the BLAS thread limit of the process it runs in"
-    Params = _Params
-
-    def design(self, pulse, factor, params, technology):
-        return Design(factor=factor)
 
     def simulate(self, pulse, design, params, rng, trials=1, technology=None):
         n = max((lib["num_threads"] for lib in threadpool_info()), default=0)
-        return Simulation(pulse=pulse.dilate(design.factor), metrics={"blas_threads": Metric(float(n), "", "BLAS threads")})
-
-    def bill(self, design, params, technology):
-        return Bill(area=0.0, power=0.0, energy_per_pulse=0.0, bw_internal=0.0)
+        return Simulation(pulse=pulse.dilate(design.factor),
+                          metrics={"blas_threads": Metric(float(n), "", "BLAS threads")})
 
 
 def _suite(n=4):
     return Suite(pulses=[{"shape": "gaussian", "name": "g", "fwhm": 200e-12, "center": 1e-9,
                           "duration": 2e-9, "rate": 40e9}],
-                 methods=["test-blas-threads"], factors=[1.0], sweep={"knob": list(np.arange(1.0, n + 1.0))})
+                 methods=["test-blas-threads"], factors=[1.0], sweep={"gain": list(np.arange(1.0, n + 1.0))})
 
 
 def _seen(res):
