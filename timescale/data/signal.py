@@ -114,8 +114,9 @@ def resample_to(pulse, rate: float, *, t_start=None, n: int | None = None):
     rate : float
         New sample rate, Hz.
     t_start : float or ndarray of shape (K,), optional
-        Time of the first new sample, s (default: the pulse's t0). An array (one record `pulse`
-        only) gives K records, one per start time, sharing one interpolant.
+        Time of the first new sample, s (default: the pulse's t0). An array (one-record `pulse`
+        only, `n` given) gives K records sharing one interpolant, record k starting at
+        t_start[k]; the returned pulse's t0 is t_start[0] (its records are shifted copies).
     n : int, optional
         Number of new samples (default: enough to span the original record).
 
@@ -126,10 +127,11 @@ def resample_to(pulse, rate: float, *, t_start=None, n: int | None = None):
     many = t_start is not None and np.ndim(t_start) > 0
     if many:
         if pulse.values.ndim != 1:
-            raise ValueError("an array t_start needs a one-record pulse")
+            raise ValueError(f"t_start as an array (one start per record) needs a one-record pulse, got "
+                             f"values of shape {pulse.values.shape}")
         t_start = np.asarray(t_start, dtype=float)
         if n is None:
-            raise ValueError("an array t_start needs n")
+            raise ValueError("t_start as an array (one start per record) needs n, the samples per record; got n=None")
     else:
         t_start = pulse.t0 if t_start is None else float(t_start)
     if n is None:

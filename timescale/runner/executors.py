@@ -92,7 +92,7 @@ def _process_chunk(indices):
 
 
 def _dask_chunk(payload, indices):
-    with limited(payload[2]):  # the worker's libraries are loaded: limit them for this task
+    with limited(payload[2], environ=False):  # the worker's libraries are loaded: limit them
         return _run_indices(payload[0], payload[1], indices)
 
 

@@ -61,15 +61,16 @@ def limit_threads(threads: int):
 
 
 @contextlib.contextmanager
-def limited(threads: int):
+def limited(threads: int, *, environ: bool = True):
     """Context: at most `threads` BLAS/OpenMP threads inside it, for the libraries already loaded
-    (threadpoolctl) and those loaded or started inside it (environment variables, restored on
-    exit); 0 does nothing. Used by the command line and by every Dask task."""
+    (threadpoolctl) and, with `environ`, those loaded or started inside it (environment
+    variables, restored on exit); 0 does nothing. Used by the command line and (without
+    `environ`: the process environment is shared by a worker's threads) by every Dask task."""
     if _check(threads) == 0:
         yield
         return
-    saved = {name: os.environ.get(name) for name in _ENV}
-    for name in _ENV:
+    saved = {name: os.environ.get(name) for name in _ENV} if environ else {}
+    for name in saved:
         os.environ[name] = str(threads)
     from threadpoolctl import threadpool_limits
 
