@@ -106,8 +106,20 @@ def _unique(schedule: Schedule):
     Equal systems (same A, B, C, D, even as distinct objects) share one discretization: a
     periodic schedule then needs only as many matrix exponentials as it has distinct systems
     and sub-step lengths. Objects are told apart by identity first; the distinct objects are
-    then compared in one pass over their stacked matrices (no per-system hashing).
+    then compared in one pass over their stacked matrices (no per-system hashing); the answer is
+    kept on the (immutable) schedule for its next run.
     """
+    cached = schedule.__dict__.get("_distinct")
+    if cached is not None:
+        return cached
+    uniq, umap = _distinct(schedule)
+    uniq = tuple(uniq)
+    umap.setflags(write=False)
+    object.__setattr__(schedule, "_distinct", (uniq, umap))
+    return uniq, umap
+
+
+def _distinct(schedule: Schedule):
     by_id, objs, obj_of = {}, [], []
     for s in schedule.systems:
         i = by_id.setdefault(id(s), len(objs))
