@@ -9,9 +9,9 @@ this process with BLAS on one thread, the load average beside each figure.
 
 Printed per case:
 
-1. the whole ``compare`` call: **first call** in a fresh Python process (imports done first and
-   reported on their own: the call pays for fresh memory, every plan and cache) and **warm**
-   (median of 3 calls);
+1. the whole ``compare`` call: **first call** in a fresh Python process (imports done first,
+   scipy.signal, scipy.optimize and scipy.linalg included, and reported on their own: the call
+   pays for fresh memory, every plan and cache) and **warm** (median of 3 calls);
 2. the split of a warm cell: design (with bill and limits), simulation, metrics, cube;
 3. the plain alternative a designer would write with scipy and numpy, given our design for free:
    per trial, ``scipy.signal.lsim`` on each side of the switch (switch rounded to a sample) and a
@@ -64,8 +64,12 @@ def pulse():
 def run_compare(case, K):
     """First call and warm median of compare() with whatever `timescale` is importable."""
     c0 = time.process_time()
+    import scipy.linalg  # noqa: F401 (every import out of the timing: newer code defers these
+    import scipy.optimize  # noqa: F401  to first use, older code imported them up front)
+    import scipy.signal  # noqa: F401
+
     import timescale as ts
-    from timescale.runner import compare as _c, cube as _cube  # noqa: F401 (imports out of the timing)
+    from timescale.runner import compare as _c, cube as _cube  # noqa: F401
     import timescale_builtins.switched_bandwidth  # noqa: F401
 
     t_import = time.process_time() - c0
