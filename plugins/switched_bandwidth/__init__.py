@@ -847,14 +847,14 @@ class SwitchedBandwidth(Method):
                                   note=f"{note}; {g.size} gm, total {np.sum(g) * speed:.3g} S; "
                                        f"differential pairs at gm/I_D = {t.gm_over_id:g} S/A, "
                                        f"×{costs.GM_BIAS_OVERHEAD:g} for bias and CMFB"))
-        items.append(BillItem("bias switch", area=t.switch_area, count=1,
-                              note="scales every bias current (summers too) by 1/α"))
+        items.append(BillItem("bias switches", area=t.switch_area * cells, count=cells,
+                              note="one per cell: its tail current steps by 1/α (summers too)"))
         total = costs.gm_c_area(float(np.sum(drawn)), t.cap_density, cells, t.gm_cell_area,
-                                t.layout_overhead, switches=1, switch_area=t.switch_area)
+                                t.layout_overhead, switches=cells, switch_area=t.switch_area)
         items.append(BillItem("layout overhead", area=total - sum(i.area for i in items), count=1,
                               note=f"active area = {t.layout_overhead:g} × the devices (wiring, "
                                    "bias, decoupling, switch drivers; card's layout_overhead)"))
-        counts = {"transconductors": cells, "capacitors": n}
+        counts = {"transconductors": cells, "capacitors": n, "switches": cells}
         return Bill.from_items(items, active_time=design.busy_time, bw_internal=bw, counts=counts)
 
     # -------------------------------------------------------------------------------------
