@@ -745,8 +745,16 @@ class SwitchedBandwidth(Method):
             return lti.Schedule.switched(system, a, t_sw, ramp=params.transition,
                                          segments=params.transition_segments)
 
-        # the reported noise is that of the nominal filter (one covariance run for all trials)
-        var = lti.output_variance(schedule(nominal, t_sw), N, dt)[0]
+        # the reported noise is that of the nominal filter (one covariance for all trials). The
+        # gm-C switch (and its ramp) scales A and Q together, which keeps the stationary
+        # covariance P0 (A P0 + P0 Aᵀ + Q = 0 holds for A/α, Q/α): the output variance is C P0 Cᵀ
+        # throughout. The passive banks change the equilibrium (kT/(αC)): propagate it.
+        if passive_lc:
+            var = lti.output_variance(nominal_schedule := schedule(nominal, t_sw), N, dt)[0]
+        else:
+            P0 = lti.stationary_covariance(nominal.A, nominal.Q)
+            var = np.full(N, float(C @ P0 @ C))
+            nominal_schedule = schedule(nominal, t_sw)
         if params.jitter > 0:
             t_sw = t_sw + params.jitter * jit
         sched = schedule(sysm, t_sw)
@@ -784,9 +792,10 @@ class SwitchedBandwidth(Method):
         clean = None
         out = Pulse(values=y, rate=rate, t0=x.t0, units=x.units, name=f"{x.name} switched")
         if params.noise:
-            # sampled from the nominal filter at each trial's switch instant: mismatch of a few
-            # per cent changes the noise by as much, and one covariance serves every trial
-            noise = lti.sample_noise(schedule(nominal, t_sw), N, dt, rng, trials=K)
+            # sampled from the nominal filter switched at the nominal instant: mismatch of a few
+            # per cent and jitter of a few ps change the noise by as little, and one covariance
+            # run then serves every trial
+            noise = lti.sample_noise(nominal_schedule, N, dt, rng, trials=K)
             clean = out
             out = out.with_values(y + noise)
         return Simulation(pulse=out, metrics=mets, path=path, clean=clean)

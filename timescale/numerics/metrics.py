@@ -307,18 +307,7 @@ def fit_fixed_clock(y: Pulse, x: Pulse, factor: float, orientation: int = 1) -> 
     K·‖ȳ − g·r_d‖² + Σ_k ‖y_k − ȳ‖²: the fit of the trial mean ȳ (:func:`fit_reference`).
     Each record's error is then taken against that one reference, so a trial whose output is
     shifted (switch-instant jitter, clock jitter) counts the shift as error, where the
-    per-trial fit would absorb it into its own latency.
-
-    Parameters
-    ----------
-    y : Pulse
-        Output, possibly batched over trials.
-    x : Pulse
-        Input (one record).
-    factor : float
-        α.
-    orientation : {+1, −1}
-        −1 compares with the time-reversed reference.
+    per-trial fit would absorb it into its own latency. Parameters as :func:`fit_reference`.
 
     Returns
     -------
