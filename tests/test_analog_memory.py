@@ -172,7 +172,8 @@ def test_truncated_record_is_reported_honestly():
     for cells in (22, 24, 40):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ts.DesignWarning)
-            cube = ts.compare(x, [METHOD], [10.0], cells=cells, write_rate=fw)
+            # a card whose clock ceiling (0.3·f_T = 45 GHz) admits the 20 GS/s write rate
+            cube = ts.compare(x, [METHOD], [10.0], cells=cells, write_rate=fw, technology=ts.preset("example-fast"))
         cell = cube.isel(method_name=0, pulse=0, factor=0)
         f = float(cell.record_energy_fraction)
         assert str(cell.status.values) == ("warned" if 1 - f > 1e-4 else "ok")
@@ -198,10 +199,11 @@ def test_bill_from_capacitor_density_and_switches():
     # kT/C: 64.36 µV at 300 K ⇔ 1 pF (standard result)
     assert out.design.cell_capacitance == pytest.approx(1e-12, rel=1e-3)
     caps = next(i for i in out.bill.items if i.name == "cell capacitors")
-    assert caps.area == pytest.approx(512 * 1e-12 / tech.cap_density, rel=1e-3)
+    # device areas times the card's layout overhead (wiring, bias, decoupling; common practice)
+    assert caps.area == pytest.approx(512 * 1e-12 / tech.cap_density * tech.layout_overhead, rel=1e-3)
     assert out.bill.counts["switches"] == 1024
     sw = next(i for i in out.bill.items if i.name == "write and read switches")
-    assert sw.area == pytest.approx(1024 * tech.switch_area)
+    assert sw.area == pytest.approx(1024 * tech.switch_area * tech.layout_overhead)
     # halving the noise target quadruples the capacitance (C = kT/v²) and the capacitor area
     out2 = ts.stretch(x, METHOD, 10.0, technology=tech, cells=512, noise_target=32.18e-6)
     caps2 = next(i for i in out2.bill.items if i.name == "cell capacitors")
@@ -220,3 +222,52 @@ def test_bad_parameters_name_themselves(name, value, match):
 def test_low_write_rate_warns_about_aliasing():
     with pytest.warns(ts.SamplingWarning, match="alias"):
         ts.stretch(gaussian(), METHOD, 2.0, write_rate=3e9)
+
+
+def test_ktc_anchor_values():
+    # kT/C (standard result): 1 pF at 300 K → 64.36 µV; 100 fF → 203.5 µV; 60 fF → 262.7 µV, the
+    # "262" of the PSEC design notes ("A few numbers", printed as mV, it is µV; found)
+    for c, v in ((1e-12, 64.36e-6), (100e-15, 203.5e-6), (60e-15, 262.7e-6)):
+        assert costs.ktc_noise(c, 300.0) == pytest.approx(v, abs=0.05e-6)
+
+
+def test_noise_reported_by_default_and_sized_to_the_target():
+    # snr_target sets the cell: C = kT/v², v = peak/10^(snr/20) (kT/C, standard result); the
+    # reported noise at the output peak is √(kT/C), so snr_db lands on the target
+    x = gaussian()
+    out = run(x, 4.0, snr_target=80.0)
+    v = 1.0 / 10 ** (80.0 / 20)
+    assert out.design.cell_capacitance == pytest.approx(costs.BOLTZMANN * 300.0 / v ** 2, rel=1e-9)
+    assert float(out.metrics["noise_rms"].value) == pytest.approx(v, rel=1e-6)
+    # the cells sample near, not at, the peak: the output peak is a little below the input's
+    peak = float(np.max(np.abs(out.pulse.values[0])))
+    assert float(out.metrics["snr_db"].value) == pytest.approx(20 * math.log10(peak / v), abs=1e-9)
+    assert 79.5 < float(out.metrics["snr_db"].value) <= 80.0
+    # a lenient target stops at the smallest cell drawn: more SNR than asked, finite
+    loose = run(x, 4.0)
+    assert loose.design.cell_capacitance == pytest.approx(10e-15)
+    assert math.isfinite(float(loose.metrics["snr_db"].value)) and float(loose.metrics["snr_db"].value) > 40.0
+
+
+def test_reported_noise_through_readout_and_droop_matches_monte_carlo():
+    # independent kT/C samples drooped and summed by the readout filter: the reported rms at
+    # the output peak against 400 simulated records
+    x = gaussian()
+    kw = {"noise": True, "noise_target": 1e-3, "readout": "butterworth", "droop_time": 20e-9}
+    out = run(x, 4.0, trials=400, seed=2, **kw)
+    k = int(np.argmax(np.abs(out.clean.values[0])))
+    measured = float(np.std(out.pulse.values[:, k] - out.clean.values[0, k]))
+    assert measured == pytest.approx(float(out.metrics["noise_rms"].value), rel=0.1)
+
+
+def test_write_rate_limit_and_self_sized_rate():
+    # the strobe clock against the card's ceiling carrier_max_fraction·f_T; the self-sized write
+    # rate stays under it when twice the 99 % bandwidth allows
+    tech = ts.preset("example-cmos130")
+    x = gaussian()
+    ceiling = tech.carrier_max_fraction * tech.f_t
+    out = run(x, 4.0, technology=tech)
+    assert out.design.write_rate <= ceiling and out.feasible
+    fast = run(x, 4.0, technology=tech, write_rate=2 * ceiling)
+    lim = {lm.name: lm for lm in fast.limits}["write rate (strobe clock)"]
+    assert not fast.feasible and lim.margin == pytest.approx(0.5)

@@ -110,11 +110,11 @@ def test_spiral_yue_wong_worked_example():
     for f, want in ((1e9, 7.95), (2e9, 11.42), (5e9, 9.27), (10e9, 4.32)):
         assert q[f].q == pytest.approx(want, rel=2e-3)
     # self-resonance from the track capacitance C_ox (low-resistivity bound) and C_s: 10.1 GHz
-    track = costs.spiral_track_length(3, 200e-6, 102e-6) * 15e-6
-    assert costs.spiral_track_length(3, 200e-6, 102e-6) == pytest.approx(1.812e-3, rel=1e-9)
-    assert costs.spiral_self_resonance(m.ls, track, EOX / 5e-6, m.cs) == pytest.approx(10.1e9, rel=0.01)
+    track = costs.spiral_track_length(3, 200e-6, 102e-6)
+    assert track == pytest.approx(1.812e-3, rel=1e-9)
+    assert costs.spiral_self_resonance(m.ls, track, 15e-6, EOX / 5e-6, m.cs) == pytest.approx(10.1e9, rel=0.01)
     # without C_s (cards do not give it) f_SR is √(1 + C_s/C_ox) higher
-    assert costs.spiral_self_resonance(m.ls, track, EOX / 5e-6) == pytest.approx(
+    assert costs.spiral_self_resonance(m.ls, track, 15e-6, EOX / 5e-6) == pytest.approx(
         10.1e9 * math.sqrt(1 + 23.3 / 93.9), rel=0.01)
 
 
@@ -130,8 +130,8 @@ def test_spiral_area_and_self_resonance_are_of_the_published_order():
 
     def f_sr(L):
         sp = costs.spiral_for_inductance(L, w, s)
-        track = costs.spiral_track_length(sp.turns, sp.d_out, sp.d_in) * w
-        return costs.spiral_self_resonance(sp.inductance, track, CMOS130.inductor_substrate_cap)
+        track = costs.spiral_track_length(sp.turns, sp.d_out, sp.d_in)
+        return costs.spiral_self_resonance(sp.inductance, track, w, CMOS130.inductor_substrate_cap)
 
     assert all(10e9 <= f_sr(L) <= 30e9 for L in (1.5e-9, 2e-9))
     assert 2e9 <= f_sr(5e-9) <= 10e9
@@ -146,8 +146,8 @@ def test_lossy_ladder_loses_what_the_lossy_line_formula_says():
     h = lti.frequency_response(line, np.array([1e9]))[0]
     h0 = lti.frequency_response(pr.system, np.array([1e9]))[0]
     loss_db = -20 * np.log10(abs(h) / abs(h0))
-    assert loss_db == pytest.approx(8.686 * math.pi * 1e9 * 3e-9 / 10, rel=0.03)
-    assert 8.686 * math.pi * 1e9 * 1e-9 / 10 == pytest.approx(2.73, rel=1e-3)
+    assert loss_db == pytest.approx(costs.lc_line_loss_db(1e9, 3e-9, 10.0), rel=0.03)
+    assert costs.lc_line_loss_db(1e9, 1e-9, 10.0) == pytest.approx(2.73, rel=1e-3)
 
 
 def test_passive_line_noise_is_kt_over_c_on_every_node():

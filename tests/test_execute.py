@@ -88,7 +88,8 @@ def test_broken_method_fails_only_its_cells(noisy):
         res = run_suite(s, progress=False)
     cube = res.cube
     st = cube["status"].sel({"pulse": "g"})
-    assert (st.sel({"method_name": "resample", "mode": "ok"}).values == "ok").all()
+    # resample never fails (at 0.5 its replay DAC outruns the card: "infeasible", metrics kept)
+    assert set(st.sel({"method_name": "resample", "mode": "ok"}).values) <= {"ok", "infeasible"}
     assert (st.sel({"method_name": "resample", "mode": "nan"}).values == "n/a").all()
     broken = st.sel({"method_name": "suite-broken"})
     assert list(broken.sel(mode="ok").values) == ["ok", "ok", "failed"]  # factor 4 > 3 raises

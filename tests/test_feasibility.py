@@ -68,7 +68,7 @@ def test_infeasible_cells_keep_their_metrics_and_name_the_binding_limit():
     assert [c["name"] for c in checked] == ["factor reach", "die area"]
     assert checked[1]["margin"] == pytest.approx(25.0)
     # a method without limits has no margin (NaN) and no binding limit
-    assert np.isnan(float(timescale.compare(x, ["resample"], [2.0])["limit_margin"].squeeze()))
+    assert np.isnan(float(timescale.compare(x, [Ideal()], [2.0])["limit_margin"].squeeze()))
 
 
 def test_param_bounds_are_enforced_with_their_range():

@@ -8,8 +8,8 @@ from scipy import signal as ss
 
 import timescale
 from timescale import metrics
-from timescale.numerics import costs
 from timescale.data.errors import DesignWarning, SamplingWarning
+from timescale.numerics import costs
 from timescale.testing import check_method
 
 SIGMA, CENTER = 100e-12, 0.8e-9
@@ -44,7 +44,7 @@ def test_capture_jitter_error_matches_the_jitter_snr_formula():
     # against the jitter-free output (a fit would absorb the part of it that looks like a delay).
     x = gaussian(rate=80e9)
     sigma_t = 2e-12
-    kw = dict(capture=True, bits=24, oversampling=6.0, dac="ideal")
+    kw = dict(capture=True, bits=24, oversampling=6.0, dac="ideal", converter_noise=False)
     clean = timescale.stretch(x, "resample", 2.0, **kw).pulse.values[0]
     noisy = timescale.stretch(x, "resample", 2.0, jitter=sigma_t, trials=400, seed=7, **kw).pulse.values
     measured = 10 * math.log10(np.sum(clean ** 2) / np.mean(np.sum((noisy - clean) ** 2, axis=-1)))
@@ -57,7 +57,7 @@ def test_quantization_noise_follows_lsb_squared_over_12():
     # where the signal spans many steps. Compared sample by sample with a 24-bit capture.
     x = timescale.Pulse.gaussian(sigma=600e-12, center=3e-9, duration=6e-9, rate=40e9)
     bits, fs = 8, 1.25  # full scale above the peak: no clipping
-    kw = dict(capture=True, full_scale=fs, oversampling=40.0, dac="ideal")
+    kw = dict(capture=True, full_scale=fs, oversampling=40.0, dac="ideal", converter_noise=False)
     y = timescale.stretch(x, "resample", 1.0, bits=bits, **kw).pulse.values[0]
     fine = timescale.stretch(x, "resample", 1.0, bits=24, **kw).pulse.values[0]
     q = 2 * fs / 2 ** bits
@@ -69,7 +69,7 @@ def test_quantization_noise_follows_lsb_squared_over_12():
 
 def test_zero_order_hold_replay_is_close_but_not_exact():
     x = gaussian(rate=80e9)
-    out = timescale.stretch(x, "resample", 4.0, capture=True, bits=14, oversampling=4.0)
+    out = timescale.stretch(x, "resample", 4.0, capture=True, bits=14, oversampling=4.0, converter_noise=False)
     fit = metrics.fit_reference(out.pulse, x, 4.0)
     assert 1e-4 < fit.nrmse[0] < 0.2
     # the replay filter and hold add delay beyond the record latency
@@ -83,7 +83,7 @@ def test_zoh_replay_matches_scipy_lsim_of_the_staircase():
     # linearly between the same points: both resolve the hold finely (measured gap ~8e-5 of the
     # peak); a wrong filter order, cutoff or hold length moves the output by percents.
     x = gaussian(rate=80e9)
-    kw = dict(capture=True, bits=14, oversampling=4.0)
+    kw = dict(capture=True, bits=14, oversampling=4.0, converter_noise=False)
     zoh = timescale.stretch(x, "resample", 4.0, **kw)
     codes = timescale.stretch(x, "resample", 4.0, dac="ideal", **kw).pulse.values[0]
     y = zoh.pulse
@@ -106,15 +106,75 @@ def test_zoh_replay_matches_scipy_lsim_of_the_staircase():
     assert fit.latency[0] - zoh.design.latency == pytest.approx(expected, rel=0.05)
 
 
-def test_bill_uses_walden_power_at_capture_rate():
+def test_bill_uses_enob_on_the_rate_frontier_at_capture_rate():
+    # Walden form P = FOM·2^ENOB·f_s (Walden, IEEE JSAC 1999) with the ENOB the capture reaches
+    # (quantization + thermal + jitter), not the resolution, on the card's frontier
     x = gaussian()
     out = timescale.stretch(x, "resample", 2.0, bits=10)
     tech = timescale.preset("example-balanced")
+    d = out.design
     adc = out.bill.items[0]
-    assert adc.power == pytest.approx(costs.walden_power(tech.adc_fom, 10, out.design.capture_rate))
+    assert d.enob < d.bits - 0.4  # thermal noise equal to the quantization noise costs ~1/2 bit
+    assert adc.power == pytest.approx(costs.adc_power(d.enob, d.capture_rate, tech.adc_fom, tech.adc_corner_rate))
+    assert adc.power < costs.walden_power(tech.adc_fom * math.sqrt(1 + (d.capture_rate / tech.adc_corner_rate) ** 2),
+                                          10, d.capture_rate)
     # capture rate = 2 × oversampling × the input's 99 % bandwidth (design rule of the method)
-    assert out.design.capture_rate == pytest.approx(2 * 1.25 * x.occupied_bandwidth())
-    assert out.bill.counts["memory_bits"] == 10 * out.design.samples
+    assert d.capture_rate == pytest.approx(2 * 1.25 * x.occupied_bandwidth())
+    assert out.bill.counts["memory_bits"] == 10 * d.samples
+
+
+def test_measured_quantizer_snr_follows_bennett():
+    # Bennett (Bell Syst. Tech. J. 1948): a busy quantizer's error has variance q²/12, so a
+    # full-scale sine sees 6.02·N + 1.76 dB. The method measures its quantizer SNR in the
+    # capture (where the input spans at least one step); a wide pulse keeps the quantizer busy.
+    x = timescale.Pulse.gaussian(sigma=600e-12, center=3e-9, duration=6e-9, rate=40e9)
+    for bits in (6, 8, 10):
+        out = timescale.stretch(x, "resample", 2.0, bits=bits, oversampling=40.0, full_scale=1.25)
+        measured = float(out.metrics["quantizer_snr_db"].value)
+        assert measured == pytest.approx(6.02 * bits + 1.76, abs=0.6), bits
+        # and not a restatement of the formula: a different pulse measures a different value
+    short = timescale.stretch(gaussian(), "resample", 2.0, bits=6, full_scale=1.25)
+    assert float(short.metrics["quantizer_snr_db"].value) != pytest.approx(6.02 * 6 + 1.76, abs=1e-3)
+
+
+def test_sized_to_snr_target_with_the_fewest_bits():
+    x = gaussian()
+    for target in (30.0, 40.0, 55.0):
+        out = timescale.stretch(x, "resample", 2.0, snr_target=target)
+        bits = out.design.bits
+        assert float(out.metrics["snr_db"].value) >= target
+        fewer = timescale.stretch(x, "resample", 2.0, bits=bits - 1)
+        assert float(fewer.metrics["snr_db"].value) < target
+        # each bit halves the step: about 6 dB of SNR (6.02 dB per bit, Walden 1999)
+        assert float(out.metrics["snr_db"].value) - float(fewer.metrics["snr_db"].value) == pytest.approx(6.02, abs=1.5)
+
+
+def test_reported_noise_matches_monte_carlo_at_the_peak():
+    # The reported noise_rms (quantization + ADC and DAC thermal noise + jitter through the
+    # replay filter) against the spread of 400 simulated captures at the output peak.
+    x = gaussian(rate=80e9)
+    out = timescale.stretch(x, "resample", 2.0, capture=True, trials=400, seed=3, oversampling=2.0,
+                            jitter=1e-12)
+    k = int(np.argmax(np.abs(out.clean.values[0])))
+    measured = float(np.sqrt(np.mean((out.pulse.values[:, k] - out.clean.values[0, k]) ** 2)))
+    assert measured == pytest.approx(float(out.metrics["noise_rms"].value), rel=0.2)
+    peak = float(np.max(np.abs(out.clean.values[0])))
+    assert float(out.metrics["snr_db"].value) == pytest.approx(20 * math.log10(peak / float(out.metrics["noise_rms"].value)))
+
+
+def test_limits_name_rate_channels_and_jitter_floor():
+    tech = timescale.preset("example-cmos130")
+    x = timescale.Pulse.gaussian(sigma=50e-12, center=1e-9, duration=3e-9, rate=100e9)
+    out = timescale.stretch(x, "resample", 2.0, technology=tech)
+    lim = {lm.name: lm for lm in out.limits}
+    rate = lim["ADC sample rate per channel"]
+    assert not out.feasible and not rate.met
+    n = math.ceil(out.design.capture_rate / tech.adc_max_rate)
+    assert f"{n} time-interleaved" in rate.note
+    # a 12-bit converter at a several-GHz band edge is above the card's aperture-jitter line
+    # (SNR = −20·log10(2π f σ_t): 3.5 GHz, 200 fs → 47.1 dB; Walden 1999, MT-008)
+    big = timescale.stretch(x, "resample", 2.0, technology=tech, bits=12)
+    assert not {lm.name: lm for lm in big.limits}["ADC ENOB at the input's 99% band edge"].met
 
 
 def test_warnings_for_aliasing_and_clipping():
@@ -123,4 +183,4 @@ def test_warnings_for_aliasing_and_clipping():
         out = timescale.stretch(x, "resample", 2.0, oversampling=0.7)
     assert any("aliases" in w for w in out.warnings)  # also kept on the outcome
     with pytest.warns(DesignWarning, match="clips"):
-        timescale.stretch(x, "resample", 2.0, capture=True, full_scale=0.5)
+        timescale.stretch(x, "resample", 2.0, capture=True, full_scale=0.5, bits=8)

@@ -162,7 +162,8 @@ def test_not_applicable_positions_are_nan_with_status_and_fill():
         cube = ts.run_suite(s, progress=False).cube
     st = cube["status"].sel(factor=2.0, pulse="g")
     # resample runs once per bits value, at the first noise coordinate only
-    assert list(st.sel({"method_name": "resample", "noise": 1e-3}).values) == ["ok"] * 3
+    # (10 bits at this pulse's band edge is beyond the card's aperture-jitter line: "infeasible")
+    assert list(st.sel({"method_name": "resample", "noise": 1e-3}).values) == ["ok", "ok", "infeasible"]
     assert list(st.sel({"method_name": "resample", "noise": 2e-3}).values) == ["n/a"] * 3
     assert list(st.sel({"method_name": "suite-noisy", "bits": 6}).values) == ["ok"] * 2
     assert list(st.sel({"method_name": "suite-noisy", "bits": 10}).values) == ["n/a"] * 2

@@ -18,6 +18,7 @@ from timescale.plugin import (
     BillItem,
     Design,
     DesignWarning,
+    Limit,
     Method,
     Metric,
     Pulse,
@@ -61,7 +62,12 @@ class ChirpParams:
     finite_q: bool = param(True, doc="lines lose exp(-ωτ/2Q) with the card's inductor Q")
     impedance: float = param(50.0, units="ohm", doc="line impedance for element values")
     detector_bandwidth: float = param(0.0, units="Hz", doc="square-law low-pass cutoff; 0 picks 3 x output band")
-    chirp_jitter: float = param(0.0, units="s", doc="rms timing jitter of the chirp (lens) start per trial")
+    chirp_jitter: float = param(0.0, units="s", doc="rms timing jitter of the chirp (lens) start per trial; "
+                                                    "below the source's own (phase noise) that one is used with noise")
+    snr_target: float = param(40.0, units="dB", doc="output peak over rms noise at the peak the make-up "
+                                                    "amplifiers are sized for", bounds=(0.0, 200.0))
+    noise: bool = param(False, doc="add the chain's thermal noise and the source's phase-noise jitter to "
+                                   "the waveform (the noise metrics are reported either way)")
     max_dbp: float = param(2000.0, doc="band-limited line: largest delay-bandwidth product")
     max_loss: float = param(40.0, units="dB", doc="band-limited line: largest insertion loss")
     max_sections: int = param(200, doc="all-pass line: most second-order sections")
@@ -131,6 +137,24 @@ class ChirpDesign(Design):
         Time the chain is powered per pulse, s.
     touchstone : str
         Measured line file, if any.
+    input_peak : float
+        Peak of the input pulse, V.
+    line_loss : tuple of float
+        Insertion loss of each line (line 1 first for the lens) at the carrier, dB.
+    amplifiers : tuple of int
+        Make-up amplifiers spread along each line (0: the loss is left to the detector).
+    amplifier_gm : tuple of float
+        Transconductance of each line's make-up amplifiers, S.
+    noise_factor : float
+        Noise factor F of the whole chain referred to the mixer's pulse port (Friis).
+    noise_bandwidth : float
+        Input-referred bandwidth of the noise that reaches the output, Hz.
+    input_noise : float
+        RMS thermal noise of the chain referred to the pulse port, V.
+    sources : int
+        Oscillator cores the chirp needs (span over the card's fractional span per core).
+    source_jitter : float
+        RMS timing jitter of the chirp from its phase noise (card vco_fom), s.
     """
 
     arrangement: str
@@ -167,6 +191,15 @@ class ChirpDesign(Design):
     detector_cutoff: float = 0.0
     active_time: float = 0.0
     touchstone: str = ""
+    input_peak: float = 0.0
+    line_loss: tuple = ()
+    amplifiers: tuple = ()
+    amplifier_gm: tuple = ()
+    noise_factor: float = 1.0
+    noise_bandwidth: float = 0.0
+    input_noise: float = 0.0
+    sources: int = 0
+    source_jitter: float = 0.0
 
 
 # ------------------------------------------------------------------------------------------
@@ -229,8 +262,78 @@ def _spiral_areas(inductances, tech, per_decade: int = 16) -> np.ndarray:
 
 def _q_loss(params, tech, f_c) -> float:
     """Insertion loss per second of delay, dB/s: the delay–loss relation exp(−ωτ/(2Q))."""
-    q_loss = 2 * math.pi * f_c / (2 * tech.inductor_q) * _NP_TO_DB if params.finite_q else 0.0
+    q_loss = costs.lc_line_loss_db(f_c, 1.0, tech.inductor_q) if params.finite_q else 0.0
     return params.loss + q_loss
+
+
+#: Segment losses (dB) between make-up amplifiers the sizing tries; inf: no amplifier.
+_SEGMENTS_DB = np.concatenate([[np.inf], np.geomspace(0.25, 60.0, 160)])
+
+
+def _amplifier_noise_factor(gm: float, r0: float, gamma: float) -> float:
+    """Noise factor of a common-source stage with a shunt input termination R0:
+    F = 2 + 4γ/(gm·R0) (B. Razavi, *RF Microelectronics*, resistively terminated LNA; from memory)."""
+    return 2.0 + 4.0 * gamma / (gm * r0)
+
+
+def _size_chain(params, tech, f_c, delays, bandwidth, peak) -> dict:
+    """Line losses, make-up amplifiers and the chain's noise referred to the pulse port.
+
+    Chain: mixer → line 1 (→ lens mixer → line 2) → envelope detector, each line's loss made up
+    by k amplifiers spread along it (equal loss segments; each amplifier restores its segment's
+    loss into R0, gm = √L_s/R0). Friis' cascade with the running gain; the detector's
+    input noise density counts as the excess noise factor v²/(k·T0·R0) at unity gain. The
+    segment loss is the one of least amplifier power whose input-referred noise meets
+    ``snr_target`` (or the quietest one when none does).
+
+    Returns
+    -------
+    dict
+        loss (dB per line), amps (per line), gm (S per line), factor (chain F), bandwidth (Hz),
+        noise (V rms, input-referred), power (W of all amplifiers).
+    """
+    r0 = params.impedance
+    kt0r = costs.BOLTZMANN * costs.T0_NOISE_FIGURE * r0
+    f_mix = 10.0 ** (tech.mixer_noise_figure / 10.0)
+    det = tech.detector_noise_density ** 2 / kt0r
+    loss_db = [(costs.lc_line_loss_db(f_c, d, tech.inductor_q) if params.finite_q else 0.0) + params.loss * d
+               for d in delays]
+    allowed = peak / 10.0 ** (params.snr_target / 20.0)
+    best = None
+    for seg in _SEGMENTS_DB:
+        excess, gain, power, amps, gms = 0.0, 1.0, 0.0, [], []
+        for l_db in loss_db:
+            excess += (f_mix - 1.0) / gain  # the mixer before this line (unity conversion gain)
+            k = 0 if (not math.isfinite(seg) or l_db <= 0) else math.ceil(l_db / seg - 1e-12)
+            if k == 0:
+                if l_db > 1000.0:  # a loss no detector can see through: this candidate is out
+                    excess = gain = math.inf
+                    break
+                excess += (10.0 ** (l_db / 10.0) - 1.0) / gain
+                gain /= 10.0 ** (l_db / 10.0)
+                amps.append(0)
+                gms.append(0.0)
+                continue
+            ls = 10.0 ** (l_db / k / 10.0)
+            gm = math.sqrt(ls) / r0
+            fa = _amplifier_noise_factor(gm, r0, tech.gm_noise_gamma)
+            excess += k * ((ls - 1.0) + (fa - 1.0) * ls) / gain  # segment, then its amplifier
+            power += k * costs.bias_current(gm, tech.gm_over_id) * tech.supply
+            amps.append(k)
+            gms.append(gm)
+        if not math.isfinite(excess):
+            continue
+        excess += det / gain
+        noise = math.sqrt(kt0r * bandwidth * excess)
+        cand = {"loss": loss_db, "amps": amps, "gm": gms, "factor": 1.0 + excess, "bandwidth": bandwidth,
+                "noise": noise, "power": power}
+        if best is None:
+            best = cand
+            continue
+        ok, best_ok = noise <= allowed, best["noise"] <= allowed
+        if (ok and (not best_ok or power < best["power"])) or (not ok and not best_ok and noise < best["noise"]):
+            best = cand
+    return best
 
 
 class _Line:
@@ -303,7 +406,7 @@ class ChirpDispersive(Method):
     name = "chirp-dispersive"
     summary = "chirped carrier + dispersive line (or a time lens): rescale the envelope by dispersion"
     Params = ChirpParams
-    version = "0.1.0"
+    version = "0.2.0"
     # factor 1 bypasses the line (exact); the inverted lens at factor 1 images through a full
     # line-lens-line chain whose sampled chirps leave errors near 1e-5
     identity_tolerance = 1e-4
@@ -325,6 +428,7 @@ class ChirpDispersive(Method):
             return ChirpDesign(factor=a, arrangement=params.arrangement, line_model=params.line,
                                magnification=1.0, bypass=True, out_rate=pulse.rate,
                                path="bypass", path_reason="factor 1 needs no dispersion",
+                               input_peak=peak,
                                notes=("factor 1: no dispersion needed, the pulse passes unchanged",))
         b = float(pulse.occupied_bandwidth(params.band_fraction))
         wb = 2 * math.pi * b
@@ -456,6 +560,13 @@ class ChirpDispersive(Method):
             notes.append(f"time stretch: Φ1 = {phi1:.4g} s², Φ2 = {phi2:.4g} s², M = {m:.4g}")
         notes.append(f"internal band {internal / 1e9:.4g} GHz about {f_c / 1e9:.4g} GHz; {reason}")
         active = w_len + (l1.line_delay if l1 else 0.0) + l2.line_delay + abs(m) * w_len
+        chain = _size_chain(params, tech, f_c, [ln.delay for ln in (l1, l2) if ln is not None],
+                            abs(m) * cutoff, peak)
+        sources = max(1, math.ceil(span / (tech.chirp_max_fractional_span * f_c) - 1e-9))
+        jitter = costs.oscillator_jitter(tech.vco_fom, tech.chirp_source_power, 1.0 / active, internal / 2)
+        notes.append(f"line loss {' + '.join(f'{v:.3g}' for v in chain['loss'])} dB at the carrier, made up by "
+                     f"{' + '.join(str(k) for k in chain['amps'])} amplifier(s); chain noise figure "
+                     f"{10 * math.log10(chain['factor']):.3g} dB; {sources} chirp source core(s)")
         return ChirpDesign(
             factor=a, notes=tuple(notes), arrangement=params.arrangement, line_model=params.line,
             magnification=m, gdd_chirp=phi1, gdd_line=phi2, gdd_focal=phif, chirp_rate=mu,
@@ -467,6 +578,10 @@ class ChirpDispersive(Method):
             bias=peak / params.modulation_index, sim_rate=fs, out_rate=pulse.rate / a, path=path,
             path_reason=reason, penalty_edge=pen_edge, penalty_nrmse=pen, detector_cutoff=cutoff,
             active_time=active, touchstone=params.touchstone if measured is not None else "",
+            input_peak=peak, line_loss=tuple(chain["loss"]), amplifiers=tuple(chain["amps"]),
+            amplifier_gm=tuple(chain["gm"]), noise_factor=chain["factor"],
+            noise_bandwidth=chain["bandwidth"], input_noise=chain["noise"], sources=sources,
+            source_jitter=jitter,
         )
 
     @staticmethod
@@ -507,7 +622,10 @@ class ChirpDispersive(Method):
     def simulate(self, pulse: Pulse, design: ChirpDesign, params: ChirpParams, rng, trials=1,
                  technology=None) -> Simulation:
         pulse = pulse.row(0)
-        jit = rng.normal(0.0, 1.0, size=(trials, 1)) * params.chirp_jitter
+        sigma_t = max(params.chirp_jitter, design.source_jitter) if params.noise else params.chirp_jitter
+        jit = rng.normal(0.0, 1.0, size=(trials, 1)) * sigma_t
+        if params.noise and not design.bypass:
+            jit = np.concatenate([[[0.0]], jit])  # one jitter-free record: the clean output
         if design.bypass:
             out = pulse.with_values(np.broadcast_to(pulse.values, (trials, pulse.n)).copy(),
                                     name=f"{pulse.name} (bypass)")
@@ -535,7 +653,7 @@ class ChirpDispersive(Method):
             wave = self._wave(env, fs, start, f_c, passband)
             y = dsp.apply_line(wave, lines[1])
         else:
-            env = np.concatenate([gate[None, :], np.broadcast_to(gate + x, (trials, n))], axis=0)
+            env = np.concatenate([gate[None, :], np.broadcast_to(gate + x, (jit.shape[0], n))], axis=0)
             wave = self._wave(env, fs, start, f_c, passband)
             a1 = dsp.apply_line(wave, lines[0])
             t_l = 0.5 * (start + stop) + design.delay1
@@ -553,11 +671,41 @@ class ChirpDispersive(Method):
         res = Pulse(out, fs, t0, pulse.units, f"{pulse.name} via {self.name}")
         res = resample_to(res, design.out_rate)
         v = np.atleast_2d(res.values)
+        clean = None
+        if params.noise:
+            clean, v = res.with_values(v[:1], name=f"{res.name} (noise-free)"), v[1:]
+        metrics = self._metrics(design, lines)
+        metrics.update(self._noise_metrics(design, params, clean.values[0] if clean else v.mean(axis=0),
+                                           res.rate))
+        if params.noise:  # the chain's thermal noise, white samples of the reported variance
+            v = v + rng.normal(0.0, metrics["thermal_noise_rms"].value, size=v.shape)
         res = res.with_values(v)
         orientation = -1 if design.magnification < 0 else 1
         path = design.path + (" (time-reversed image)" if orientation < 0 else "")
-        return Simulation(pulse=res, orientation=orientation, path=path,
-                          metrics=self._metrics(design, lines))
+        return Simulation(pulse=res, orientation=orientation, path=path, metrics=metrics, clean=clean)
+
+    @staticmethod
+    def _noise_metrics(design: ChirpDesign, params: ChirpParams, y: np.ndarray, rate: float) -> dict:
+        """noise_rms and snr_db at the output peak: the chain's thermal noise (referred to the
+        pulse port, times the output gain) and the chirp's timing jitter, which moves the output
+        by (1 − M)·δ (a chirp, or a time lens, shifted by δ; imaging relation, derived)."""
+        k = int(np.argmax(np.abs(y)))
+        peak = float(abs(y[k]))
+        thermal = design.input_noise * peak / design.input_peak
+        sigma = abs(1.0 - design.magnification) * max(params.chirp_jitter, design.source_jitter)
+        d1 = np.gradient(y, 1.0 / rate)
+        d2 = np.gradient(d1, 1.0 / rate)
+        rms = math.sqrt(thermal ** 2 + costs.jitter_error_variance(sigma, d1[k], d2[k]))
+        return {
+            "noise_rms": Metric(rms, "V", "output rms noise at the output peak"),
+            "snr_db": Metric(20 * math.log10(peak / rms), "dB", "output peak over rms noise"),
+            "thermal_noise_rms": Metric(thermal, "V", "output rms thermal noise of mixer, line, amplifiers, detector"),
+            "chirp_jitter_rms": Metric(max(params.chirp_jitter, design.source_jitter), "s",
+                                       "rms timing jitter of the chirp (phase noise or given)"),
+            "noise_figure": Metric(10 * math.log10(design.noise_factor), "dB",
+                                   "noise figure of the chain referred to the pulse port"),
+            "line_loss": Metric(float(sum(design.line_loss)), "dB", "insertion loss of the line(s) at the carrier"),
+        }
 
     @staticmethod
     def _wave(env, fs, t0, f_c, passband):
@@ -647,36 +795,35 @@ class ChirpDispersive(Method):
         if design.bypass:
             return Bill(area=0.0, power=0.0, energy_per_pulse=0.0, bw_internal=design.out_rate / 2,
                         counts={"sections": 0}, items=(BillItem("bypass", note="factor 1: nothing to build"),))
-        r0 = params.impedance
         items = []
         n_l = n_c = n_s = 0
-        lines = [(design.gdd_line, design.line_band, design.sections, "line")]
-        if design.arrangement == "lens":
-            lines.insert(0, (design.gdd_chirp, design.line1_band, design.sections1, "line 1"))
-        for gdd, band, sections, label in lines:
-            if not sections:
-                # what an all-pass realisation of this GDD and band would take
-                n = dsp.allpass_section_count(gdd, band[0], band[1])
-                w0 = 2 * math.pi * np.linspace(band[0], band[1], n + 2)[1:-1]
-                sp = 2 * math.pi * (band[1] - band[0]) / n
-                sections = [(w, w / (1.2 * sp)) for w in w0]
-            # constant-resistance lattice of (s² − (ω0/Q)s + ω0²)/(s² + (ω0/Q)s + ω0²): series arm a
-            # parallel tank L = R0/(Qω0), C = Q/(R0ω0); cross arm a series LC L = R0Q/ω0,
-            # C = 1/(R0Qω0) (standard network theory); an unbridged-T form uses one of each.
-            sec = np.asarray(sections, dtype=float).reshape(-1, 2)
-            w0, q = sec[:, 0], sec[:, 1]
-            area_l = float(np.sum(_spiral_areas(np.concatenate([r0 / (q * w0), r0 * q / w0]), tech)))
-            area_c = float(np.sum(q / (r0 * w0) + 1 / (r0 * q * w0))) / tech.cap_density
-            k = len(sections)
+        over = tech.layout_overhead
+        for label, ind, cap in _line_elements(design, params):
+            area_l = float(np.sum(_spiral_areas(ind, tech)))
+            area_c = float(np.sum(cap)) / tech.cap_density
+            k = ind.size // 2
             n_l += 2 * k
             n_c += 2 * k
             n_s += k
-            items.append(BillItem(f"{label} inductors", area_l, 0.0, 2 * k,
-                                  "spiral inductors, modified Wheeler formula (2 per all-pass section)"))
-            items.append(BillItem(f"{label} capacitors", area_c, 0.0, 2 * k, "card cap_density"))
+            items.append(BillItem(f"{label} inductors", area_l * over, 0.0, 2 * k,
+                                  f"square spirals, modified Wheeler (Mohan 1999), x {over:g} layout overhead"))
+            items.append(BillItem(f"{label} capacitors", area_c * over, 0.0, 2 * k,
+                                  f"card cap_density, x {over:g} layout overhead"))
+        n_amp = 0
+        for label, k, gm in zip(_line_labels(design), design.amplifiers, design.amplifier_gm):
+            if not k:
+                continue
+            cells = math.ceil(gm / tech.gm_max - 1e-12)
+            items.append(BillItem(f"{label} make-up amplifiers", k * cells * tech.gm_cell_area * over,
+                                  k * costs.bias_current(gm, tech.gm_over_id) * tech.supply, k,
+                                  f"gm = {gm * 1e3:.3g} mS each ({cells} cell(s)) restores its segment's loss"))
+            n_amp += k
         lens = design.arrangement == "lens"
-        items.append(BillItem("chirp source", tech.chirp_source_area, tech.chirp_source_power, 1,
-                              "card per-block figure"))
+        n_src = design.sources
+        items.append(BillItem("chirp source", tech.chirp_source_area * n_src, tech.chirp_source_power * n_src,
+                              n_src, f"card per-core figure x {n_src} core(s): span "
+                                     f"{design.chirp_span / 1e9:.3g} GHz over {tech.chirp_max_fractional_span:g} "
+                                     f"of the carrier per core"))
         if lens:
             items.append(BillItem("carrier source", tech.chirp_source_area, tech.chirp_source_power, 1,
                                   "card chirp-source figure used for the CW carrier"))
@@ -691,4 +838,68 @@ class ChirpDispersive(Method):
         return Bill.from_items(items, active_time=design.active_time,
                                bw_internal=design.chirp_span + 2 * design.signal_band,
                                counts={"inductors": n_l, "capacitors": n_c, "sections": n_s,
-                                       "mixers": n_mix, "sources": 2 if lens else 1, "detectors": 1})
+                                       "mixers": n_mix, "sources": n_src + (1 if lens else 0), "detectors": 1,
+                                       "amplifiers": n_amp})
+
+    # -- process limits -----------------------------------------------------------------------
+    def limits(self, design: ChirpDesign, params: ChirpParams, technology) -> tuple[Limit, ...]:
+        tech = technology
+        if design.bypass:
+            return ()
+        ceiling = tech.carrier_max_fraction * tech.f_t
+        top = max(design.line_band[1], design.line1_band[1], design.carrier + design.chirp_span / 2)
+        srf = math.inf
+        ind = np.concatenate([e[1] for e in _line_elements(design, params)])
+        if ind.size:
+            try:
+                sp = costs.spiral_for_inductance(float(ind.max()), tech.inductor_track_width,
+                                                 tech.inductor_track_spacing)
+                srf = costs.spiral_self_resonance(sp.inductance, costs.spiral_track_length(sp.turns, sp.d_out, sp.d_in),
+                                                  tech.inductor_track_width, tech.inductor_substrate_cap)
+            except ValueError:
+                srf = 0.0  # no spiral on chip reaches it
+        allowed_noise = design.input_peak / 10 ** (params.snr_target / 20)
+        lims = [
+            Limit("carrier frequency", design.carrier, ceiling, "Hz",
+                  note=f"card carrier_max_fraction x f_T = {tech.carrier_max_fraction:g} x {tech.f_t:.3g} Hz"),
+            Limit("highest chirp or line frequency", top, ceiling, "Hz",
+                  note=f"carrier + half the chirp span and signal band; chirp span {design.chirp_span:.3g} Hz"),
+            Limit("area", self.bill(design, params, tech).area, tech.die_area, "m²", note="card die_area"),
+            Limit("noise with the line loss made up", design.input_noise, allowed_noise, "V",
+                  note=f"input-referred, for snr_target = {params.snr_target:g} dB; line loss "
+                       f"{sum(design.line_loss):.4g} dB, {sum(design.amplifiers)} make-up amplifier(s)"),
+        ]
+        if math.isfinite(srf):
+            lims.append(Limit("spiral self-resonance", top, srf, "Hz",
+                              note=f"largest spiral {ind.max():.3g} H; f_SR from its track-to-substrate "
+                                   f"capacitance (Yue-Wong π model, card inductor_substrate_cap)"))
+        return tuple(lims)
+
+
+def _line_labels(design: ChirpDesign) -> list[str]:
+    return ["line 1", "line 2"] if design.arrangement == "lens" else ["line"]
+
+
+def _line_elements(design: ChirpDesign, params: ChirpParams):
+    """Inductances (H) and capacitances (F) of each line realised as all-pass lattice sections:
+    ``[(label, inductances, capacitances), ...]``, line 1 first for the lens."""
+    r0 = params.impedance
+    lines = [(design.gdd_line, design.line_band, design.sections)]
+    if design.arrangement == "lens":
+        lines.insert(0, (design.gdd_chirp, design.line1_band, design.sections1))
+    out = []
+    for label, (gdd, band, sections) in zip(_line_labels(design), lines):
+        if not sections:
+            # what an all-pass realisation of this GDD and band would take
+            n = dsp.allpass_section_count(gdd, band[0], band[1])
+            w0 = 2 * math.pi * np.linspace(band[0], band[1], n + 2)[1:-1]
+            sp = 2 * math.pi * (band[1] - band[0]) / n
+            sections = [(w, w / (1.2 * sp)) for w in w0]
+        # constant-resistance lattice of (s² − (ω0/Q)s + ω0²)/(s² + (ω0/Q)s + ω0²): series arm a
+        # parallel tank L = R0/(Qω0), C = Q/(R0ω0); cross arm a series LC L = R0Q/ω0,
+        # C = 1/(R0Qω0) (standard network theory); an unbridged-T form uses one of each.
+        sec = np.asarray(sections, dtype=float).reshape(-1, 2)
+        w0, q = sec[:, 0], sec[:, 1]
+        out.append((label, np.concatenate([r0 / (q * w0), r0 * q / w0]),
+                    np.concatenate([q / (r0 * w0), 1 / (r0 * q * w0)])))
+    return out

@@ -90,8 +90,8 @@ def line_for(delay: float, f, P, target: float, technology, factor: float, *,
     bank = max(1.0, float(factor))
     w, s = technology.inductor_track_width, technology.inductor_track_spacing
     spiral = costs.spiral_for_inductance(bank * L, w, s)
-    track = costs.spiral_track_length(spiral.turns, spiral.d_out, spiral.d_in) * w
-    f_sr = costs.spiral_self_resonance(spiral.inductance, track, technology.inductor_substrate_cap)
+    track = costs.spiral_track_length(spiral.turns, spiral.d_out, spiral.d_in)
+    f_sr = costs.spiral_self_resonance(spiral.inductance, track, w, technology.inductor_substrate_cap)
     devices = sections * (spiral.area + bank * C / technology.cap_density + 2 * technology.switch_area)
     return LCLine(sections, L, C, bank, spiral, f_sr, technology.layout_overhead * devices)
 
@@ -105,7 +105,7 @@ def lossy(system: lti.StateSpace, q: float, frequency: float) -> lti.StateSpace:
     loss rises with frequency above it and falls below it (its Q is flatter than ωL/R).
     """
     A = np.array(system.A, dtype=float)
-    rate = 2.0 * math.pi * frequency / q
+    rate = costs.spiral_series_resistance(1.0, q, frequency)  # R/L, 1/s
     idx = np.arange(0, A.shape[0], 2)  # current states
     A[idx, idx] -= rate
     return lti.StateSpace(A, system.B, system.C, system.D)

@@ -30,7 +30,7 @@ DEMO_TRIALS = 8
 
 #: Non-idealities per method (invented, plausible magnitudes); methods not installed are skipped.
 _DEMO_PARAMS = {
-    "resample": {"capture": True, "bits": 10, "jitter": 0.3e-12, "oversampling": 2.5},
+    "resample": {"capture": True, "jitter": 0.3e-12, "oversampling": 2.5},  # bits sized for snr_target
     "switched-bandwidth": {"noise": True, "gm_mismatch": 0.005, "jitter": 0.3e-12},
     "chirp-dispersive": {"arrangement": "lens", "chirp_jitter": 0.3e-12},
     "analog-memory": {"noise": True, "aperture_jitter": 0.3e-12, "gain_mismatch": 0.005,

@@ -5,6 +5,7 @@ All quantities are SI. Each function states its source in Notes.
 
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import dataclass
 
@@ -27,14 +28,32 @@ __all__ = [
     "spiral_inductance",
     "spiral_for_inductance",
     "Spiral",
+    # converters, oscillators and receivers
+    "T0_NOISE_FIGURE",
+    "sndr_from_enob",
+    "adc_frontier_fom",
+    "adc_power",
+    "schreier_frontier",
+    "aperture_jitter_snr_db",
+    "jitter_error_variance",
+    "quantizer_step",
+    "quantization_noise",
+    "noise_from_figure",
+    "friis_noise_figure",
+    "vco_fom",
+    "vco_phase_noise",
+    "phase_noise_jitter",
+    "oscillator_jitter",
+    "lc_line_loss_db",
+    "spiral_track_length",
+    "spiral_self_resonance",
+    # filters, transconductors and passives
     "GM_BIAS_OVERHEAD",
     "gm_cell_pole",
     "transconductor_power",
     "gm_c_area",
     "ct_filter_fom",
     "vittoz_min_power",
-    "spiral_track_length",
-    "spiral_self_resonance",
     "spiral_series_resistance",
     "SpiralPi",
     "spiral_pi_model",
@@ -246,6 +265,343 @@ def spiral_for_inductance(inductance: float, width: float, spacing: float, *,
     return best
 
 
+# ------------------------------------------------------------------------------------------
+# Converters, oscillators and receivers (issue 13: resample, chirp-dispersive, analog memory)
+# ------------------------------------------------------------------------------------------
+#: Reference temperature of a noise figure, K (IEEE definition).
+T0_NOISE_FIGURE = 290.0
+
+
+def sndr_from_enob(enob: float) -> float:
+    """SNDR of a converter of `enob` effective bits on a full-scale sine, 6.02·ENOB + 1.76 dB.
+
+    Notes
+    -----
+    The inverse of :func:`enob_from_sndr` (Walden 1999).
+    """
+    return 6.02 * _checks.finite("enob", enob) + 1.76
+
+
+def adc_frontier_fom(rate: float, fom: float, corner_rate: float) -> float:
+    """Walden figure of merit on a rate-dependent frontier, J per conversion step.
+
+    ``FOM(f_s) = fom · √(1 + (f_s/f_corner)²)``: flat (`fom`) well below the corner, worse by
+    10 dB per decade of rate above it.
+
+    Parameters
+    ----------
+    rate : float
+        Sample rate f_s, Hz.
+    fom : float
+        Walden figure of merit below the corner, J.
+    corner_rate : float
+        Corner rate f_corner, Hz.
+
+    Notes
+    -----
+    The shape is the envelope B. Murmann draws through his ADC performance survey (1997–
+    present, github.com/bmurmann/ADC-survey): the Schreier figure of merit flat below a corner
+    and falling 10·log10(√(1 + (f/f_c)²)) dB above it. At a fixed ENOB, P = BW·10^((SNDR −
+    FOM_S)/10) on that envelope is exactly P = FOM(f_s)·2^ENOB·f_s with this FOM(f_s), so the
+    Walden form here and the Schreier envelope are one frontier (see :func:`schreier_frontier`).
+    """
+    f = _checks.positive("rate", rate)
+    return _checks.positive("fom", fom) * math.sqrt(1.0 + (f / _checks.positive("corner_rate", corner_rate)) ** 2)
+
+
+def adc_power(enob: float, rate: float, fom: float, corner_rate: float) -> float:
+    """Converter power on the rate-dependent frontier, P = FOM(f_s) · 2^ENOB · f_s, W.
+
+    Parameters
+    ----------
+    enob : float
+        Effective number of bits (from the converter's SNDR, not its resolution).
+    rate : float
+        Sample rate, Hz.
+    fom, corner_rate : float
+        Frontier (see :func:`adc_frontier_fom`), J and Hz.
+    """
+    return walden_power(adc_frontier_fom(rate, fom, corner_rate), enob, rate)
+
+
+def schreier_frontier(rate: float, asymptote_db: float, corner_rate: float) -> float:
+    """Schreier figure-of-merit envelope of an ADC survey at a Nyquist rate, dB.
+
+    ``FOM_S(f) = FOM_asym − 10·log10(√(1 + (f/f_c)²))`` (−10 dB/decade above f_c).
+
+    Notes
+    -----
+    B. Murmann, "ADC Performance Survey 1997–20xx", github.com/bmurmann/ADC-survey,
+    plots/foms_plot.ipynb (envelope from the mean of the five best designs); its
+    plots/foms_plot.json gives FOM_asym = 186.72 dB and f_c = 46.73 MHz. Example: 1 GS/s →
+    173.41 dB.
+    """
+    f = _checks.positive("rate", rate)
+    fc = _checks.positive("corner_rate", corner_rate)
+    return _checks.finite("asymptote_db", asymptote_db) - 10.0 * math.log10(math.sqrt(1.0 + (f / fc) ** 2))
+
+
+def aperture_jitter_snr_db(frequency: float, jitter: float) -> float:
+    """SNR of a full-scale sine at `frequency` sampled with rms jitter `jitter`, dB.
+
+    ``SNR = −20·log10(2π·f·σ_t)``.
+
+    Notes
+    -----
+    W. Kester, "Converting oscillator phase noise to time jitter", Analog Devices MT-008;
+    the same line bounds the surveyed ADCs in Walden (IEEE JSAC 1999). 1 GHz, 100 fs →
+    64.04 dB.
+    """
+    return -20.0 * math.log10(2.0 * math.pi * _checks.positive("frequency", frequency)
+                              * _checks.positive("jitter", jitter))
+
+
+def jitter_error_variance(jitter: float, slope, curvature):
+    """Variance of the error of sampling x at t + δ, δ ~ N(0, σ²): σ²·ẋ² + σ⁴·ẍ²/2, V².
+
+    From x(t + δ) ≈ x + δ·ẋ + δ²·ẍ/2 (E[δ²] = σ², Var[δ²] = 2σ⁴). Works on arrays.
+
+    Parameters
+    ----------
+    jitter : float
+        RMS timing error σ, s.
+    slope, curvature : float or ndarray
+        ẋ (V/s) and ẍ (V/s²) at the sampling instants.
+
+    Notes
+    -----
+    First-order term as in W. Kester, Analog Devices MT-008 (a sine at f gives
+    SNR = −20·log10(2πfσ)); the second-order term keeps it non-zero at a peak.
+    """
+    s2 = _checks.nonnegative("jitter", jitter) ** 2
+    return s2 * np.square(slope) + 0.5 * s2 * s2 * np.square(curvature)
+
+
+def quantizer_step(full_scale: float, bits: float) -> float:
+    """Step of a mid-tread quantizer spanning ±`full_scale` with `bits` bits, q = 2·FS/2^N, V."""
+    return 2.0 * _checks.positive("full_scale", full_scale) / 2.0 ** _checks.positive("bits", bits)
+
+
+def quantization_noise(step: float) -> float:
+    """RMS quantization error of a busy uniform quantizer, q/√12, V.
+
+    Notes
+    -----
+    W. R. Bennett, "Spectra of quantized signals", Bell Syst. Tech. J. 27, 1948: the error is
+    uniform over ±q/2 when the signal spans many steps.
+    """
+    return _checks.positive("step", step) / math.sqrt(12.0)
+
+
+def noise_from_figure(nf_db: float, bandwidth: float, resistance: float, *,
+                      temperature: float = T0_NOISE_FIGURE, added_only: bool = False) -> float:
+    """RMS noise voltage of a stage of noise figure `nf_db` across `resistance`, V.
+
+    ``v² = k·T0·B·F·R`` (source noise included), or ``k·T0·B·(F − 1)·R`` with `added_only`
+    (the stage's own contribution, referred to its input).
+
+    Parameters
+    ----------
+    nf_db : float
+        Noise figure, dB.
+    bandwidth : float
+        Noise bandwidth, Hz.
+    resistance : float
+        Source (matched) resistance, Ω.
+    temperature : float
+        Reference temperature of the figure, K (290 K by definition).
+
+    Notes
+    -----
+    H. T. Friis, "Noise figures of radio receivers", Proc. IRE 32(7), 1944 (definition of the
+    noise factor as available noise powers). NF 3 dB, 1 GHz, 50 Ω → −80.98 dBm, 19.99 µV.
+    """
+    f = 10.0 ** (_checks.nonnegative("nf_db", nf_db) / 10.0)
+    excess = f - 1.0 if added_only else f
+    return math.sqrt(BOLTZMANN * _checks.positive("temperature", temperature) * excess
+                     * _checks.positive("bandwidth", bandwidth) * _checks.positive("resistance", resistance))
+
+
+def friis_noise_figure(noise_figures_db, gains_db) -> float:
+    """Noise figure of a cascade, dB: F = F1 + (F2 − 1)/G1 + (F3 − 1)/(G1·G2) + ….
+
+    Parameters
+    ----------
+    noise_figures_db : sequence of float
+        Each stage's noise figure, dB (a passive loss L has NF = L).
+    gains_db : sequence of float
+        Each stage's available power gain, dB (a loss is negative); same length.
+
+    Notes
+    -----
+    H. T. Friis, Proc. IRE 32(7), 1944. LNA (3 dB, 15 dB) then a 12 dB mixer → 3.92 dB.
+    """
+    nfs = [10.0 ** (_checks.finite("noise_figures_db", v) / 10.0) for v in noise_figures_db]
+    gains = [10.0 ** (_checks.finite("gains_db", v) / 10.0) for v in gains_db]
+    if len(nfs) != len(gains) or not nfs:
+        raise ValueError(f"noise_figures_db and gains_db must be equal, non-empty lists, "
+                         f"got {len(nfs)} and {len(gains)} entries")
+    total, g = nfs[0], gains[0]
+    for f, gi in zip(nfs[1:], gains[1:]):
+        total += (f - 1.0) / g
+        g *= gi
+    return 10.0 * math.log10(total)
+
+
+def vco_fom(phase_noise_dbc: float, frequency: float, offset: float, power: float) -> float:
+    """Oscillator figure of merit −L(Δf) + 20·log10(f0/Δf) − 10·log10(P/1 mW), dB.
+
+    Notes
+    -----
+    Standard definition (positive convention). P = 6 mW, f0 = 1.8 GHz, L = −116 dBc/Hz at
+    600 kHz → 177.76 dB.
+    """
+    return (-_checks.finite("phase_noise_dbc", phase_noise_dbc)
+            + 20.0 * math.log10(_checks.positive("frequency", frequency) / _checks.positive("offset", offset))
+            - 10.0 * math.log10(_checks.positive("power", power) / 1e-3))
+
+
+def vco_phase_noise(fom_db: float, frequency: float, offset: float, power: float) -> float:
+    """Phase noise L(Δf) of an oscillator of figure of merit `fom_db`, dBc/Hz (the inverse of
+    :func:`vco_fom`; valid in the 1/f² region)."""
+    return (-_checks.finite("fom_db", fom_db)
+            + 20.0 * math.log10(_checks.positive("frequency", frequency) / _checks.positive("offset", offset))
+            - 10.0 * math.log10(_checks.positive("power", power) / 1e-3))
+
+
+def phase_noise_jitter(frequency: float, offsets, phase_noise_dbc) -> float:
+    """RMS timing jitter from a phase-noise profile, σ_t = √(2∫L(f)df) / (2π·f0), s.
+
+    L(f) is taken as straight between the given points on log-log axes (a power law on each
+    segment, integrated exactly) and zero outside them.
+
+    Parameters
+    ----------
+    frequency : float
+        Carrier f0, Hz.
+    offsets : sequence of float
+        Offset frequencies, Hz, increasing.
+    phase_noise_dbc : sequence of float
+        L at each offset, dBc/Hz.
+
+    Notes
+    -----
+    W. Kester, Analog Devices MT-008 (integrate L(f), σ_φ = √(2·10^(A/10)), σ_t = σ_φ/(2πf0)).
+    600 MHz, −60/−75/−85/−95 dBc/Hz at 10 Hz/100 Hz/1 kHz/10 kHz → 1.99 ps.
+    """
+    f0 = _checks.positive("frequency", frequency)
+    f = [_checks.positive("offsets", v) for v in offsets]
+    ell = [10.0 ** (_checks.finite("phase_noise_dbc", v) / 10.0) for v in phase_noise_dbc]
+    if len(f) != len(ell) or len(f) < 2 or any(b <= a for a, b in itertools.pairwise(f)):
+        raise ValueError("offsets must be >= 2 increasing frequencies, one per phase_noise_dbc value")
+    area = 0.0
+    for f1, f2, l1, l2 in zip(f, f[1:], ell, ell[1:]):
+        k = math.log(l2 / l1) / math.log(f2 / f1)  # L ∝ f^k on this segment
+        if abs(k + 1.0) < 1e-12:
+            area += l1 * f1 * math.log(f2 / f1)
+        else:
+            area += l1 * f1 / (k + 1.0) * ((f2 / f1) ** (k + 1.0) - 1.0)
+    return math.sqrt(2.0 * area) / (2.0 * math.pi * f0)
+
+
+def oscillator_jitter(fom_db: float, power: float, f_low: float, f_high: float) -> float:
+    """RMS timing jitter of an oscillator in its 1/f² region, integrated from f_low to f_high, s.
+
+    With L(Δf) = L1·(1 Hz/Δf)²·f0² (:func:`vco_phase_noise`), 2∫L df = 2·10^((−FOM − 10·log10
+    (P/1 mW))/10)·f0²·(1/f_low − 1/f_high), so σ_t = σ_φ/(2πf0) does not depend on f0.
+
+    Parameters
+    ----------
+    fom_db : float
+        Oscillator figure of merit, dB.
+    power : float
+        Oscillator power, W.
+    f_low, f_high : float
+        Integration band, Hz.
+
+    Notes
+    -----
+    Integrating L(f) as in W. Kester, Analog Devices MT-008. FOM 170 dB, 10 mW, 1–100 MHz is
+    the 10 GHz, −100 dBc/Hz at 1 MHz case: 0.224 ps.
+    """
+    lo = _checks.positive("f_low", f_low)
+    hi = _checks.positive("f_high", f_high)
+    if hi <= lo:
+        raise ValueError(f"f_high ({hi} Hz) must exceed f_low ({lo} Hz)")
+    l_1hz = 10.0 ** ((-_checks.finite("fom_db", fom_db)
+                      - 10.0 * math.log10(_checks.positive("power", power) / 1e-3)) / 10.0)
+    return math.sqrt(2.0 * l_1hz * (1.0 / lo - 1.0 / hi)) / (2.0 * math.pi)
+
+
+# ---- passives shared by the line models ---------------------------------------------------
+
+def lc_line_loss_db(frequency: float, delay: float, q_inductor: float,
+                    q_capacitor: float = math.inf) -> float:
+    """Insertion loss of a lumped LC delay line, 8.686·π·f·τ·(1/Q_L + 1/Q_C), dB.
+
+    Parameters
+    ----------
+    frequency : float
+        Frequency, Hz.
+    delay : float
+        Group delay the line gives at that frequency, s.
+    q_inductor, q_capacitor : float
+        Quality factors of the inductors and capacitors.
+
+    Notes
+    -----
+    Lossy-line attenuation α ≈ R/(2Z0) + G·Z0/2 with R = ωL/Q_L, G = ωC/Q_C per section
+    (D. M. Pozar, *Microwave Engineering*, lossy lines; from memory): the loss per second of
+    delay is ω/2·(1/Q_L + 1/Q_C) nepers. Q_L = 10 at 1 GHz → 2.73 dB/ns.
+    """
+    q_c = q_capacitor if q_capacitor == math.inf else _checks.positive("q_capacitor", q_capacitor)
+    inv_q = 1.0 / _checks.positive("q_inductor", q_inductor) + 1.0 / q_c
+    return (20.0 / math.log(10.0)) * math.pi * _checks.nonnegative("frequency", frequency) \
+        * _checks.nonnegative("delay", delay) * inv_q
+
+
+def spiral_track_length(turns: float, d_out: float, d_in: float) -> float:
+    """Track length of a square spiral, l ≈ 4·n·d_avg, m (d_avg = (d_out + d_in)/2).
+
+    Notes
+    -----
+    n = 3, d_out = 200 µm, d_in = 102 µm → 1.812 mm (the Yue–Wong example geometry).
+    """
+    return 4.0 * _checks.positive("turns", turns) * 0.5 * (_checks.positive("d_out", d_out)
+                                                          + _checks.nonnegative("d_in", d_in))
+
+
+def spiral_self_resonance(inductance: float, track_length: float, width: float,
+                          substrate_cap: float, series_cap: float = 0.0) -> float:
+    """Self-resonant frequency of a spiral, f_SR = 1/(2π·√(L·(C_s + C_ox))), Hz.
+
+    C_ox = ½·l·w·C_sub is the oxide capacitance of one port of the Yue–Wong π model (track
+    area l·w over the substrate, half at each port); `series_cap` C_s is the underpass
+    overlap (0 when the card does not give it, which makes f_SR optimistic).
+
+    Parameters
+    ----------
+    inductance : float
+        H.
+    track_length, width : float
+        m.
+    substrate_cap : float
+        Track-to-substrate capacitance per area, F/m².
+    series_cap : float
+        F.
+
+    Notes
+    -----
+    C. P. Yue, S. S. Wong, "On-chip spiral inductors with patterned ground shields for Si-based
+    RF ICs", IEEE JSSC 33(5), 1998 (element forms from memory). n = 3, 200 µm, w = 15 µm,
+    2.112 nH, C_ox = 93.9 fF, C_s = 23.3 fF → 10.1 GHz.
+    """
+    c_ox = 0.5 * _checks.positive("track_length", track_length) * _checks.positive("width", width) \
+        * _checks.positive("substrate_cap", substrate_cap)
+    c = c_ox + _checks.nonnegative("series_cap", series_cap)
+    return 1.0 / (2.0 * math.pi * math.sqrt(_checks.positive("inductance", inductance) * c))
+
+
 # ---- filters, transconductors and passives ---------------------------------------------------
 #
 # The gm-C filter and passive LC line cost models (switched-bandwidth and any method that builds
@@ -394,47 +750,6 @@ def vittoz_min_power(bandwidth: float, snr_db: float, poles: int = 1, temperatur
     """
     return (8.0 * BOLTZMANN * _checks.positive("temperature", temperature) * _checks.positive("bandwidth", bandwidth)
             * 10.0 ** (_checks.finite("snr_db", snr_db) / 10.0) * _checks.positive("poles", poles))
-
-
-def spiral_track_length(turns: float, d_out: float, d_in: float) -> float:
-    """Track length of a square spiral, ``l = 4 · n · d_avg``, m (Mohan et al. 1999).
-
-    n = 3, d_out = 200 µm, d_in = 102 µm → 1.812 mm.
-    """
-    d_out = _checks.positive("d_out", d_out)
-    d_in = _checks.nonnegative("d_in", d_in)
-    return 4.0 * _checks.positive("turns", turns) * 0.5 * (d_out + d_in)
-
-
-def spiral_self_resonance(inductance: float, track_area: float, substrate_cap: float,
-                          series_cap: float = 0.0) -> float:
-    """Self-resonance of a spiral from its track capacitance, Hz.
-
-    ``f_SR = 1 / (2π √(L · (C_s + C_ox)))``, ``C_ox = ½ · l · w · c_sub`` (the Yue–Wong
-    oxide capacitance at one port; taking the whole of it is the low-resistivity-substrate
-    bound, which gives the lowest f_SR).
-
-    Parameters
-    ----------
-    inductance : float
-        H.
-    track_area : float
-        Track length times width l·w, m².
-    substrate_cap : float
-        Track-to-substrate capacitance per area, F/m² (``Technology.inductor_substrate_cap``).
-    series_cap : float
-        Underpass (interwinding) capacitance C_s, F; cards do not give it, and leaving it out
-        raises f_SR by √(1 + C_s/C_ox) (about 12 % in the worked example below).
-
-    Notes
-    -----
-    C. P. Yue, S. S. Wong, IEEE JSSC 33(5), 1998 (from memory). Square, n = 3, d_out = 200 µm,
-    w = 15 µm, 5 µm of oxide, 1 µm under the underpass: L = 2.112 nH, C_ox = 93.9 fF,
-    C_s = 23.3 fF → 10.1 GHz.
-    """
-    cp = 0.5 * _checks.positive("track_area", track_area) * _checks.positive("substrate_cap", substrate_cap)
-    c = cp + _checks.nonnegative("series_cap", series_cap)
-    return 1.0 / (2.0 * math.pi * math.sqrt(_checks.positive("inductance", inductance) * c))
 
 
 def spiral_series_resistance(inductance: float, q: float, frequency: float) -> float:

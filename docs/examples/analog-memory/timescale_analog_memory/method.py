@@ -13,7 +13,8 @@ Model (each effect off by default, so the default is the ideal sampled memory):
 * sampling aperture t_a: each cell holds the average of the input over a window t_a centred on
   its instant, a filter H(f) = sinc(f·t_a);
 * aperture jitter: the instants move by independent Gaussian errors of rms σ_t;
-* kT/C noise: each cell of capacitance C holds a sample of rms √(kT/C);
+* kT/C noise: each cell of capacitance C holds a sample of rms √(kT/C) (reported as
+  ``noise_rms``/``snr_db`` at the output peak always; added to the waveform with ``noise``);
 * cell-to-cell gain mismatch: cell k has gain 1 + ε_k, ε_k Gaussian of rms σ_g (per trial);
 * droop: the held charge leaks with a time constant τ, so cell k is multiplied by
   exp(−h_k/τ), h_k being its hold time from write to read;
@@ -21,10 +22,15 @@ Model (each effect off by default, so the default is the ideal sampled memory):
   a staircase and is sampled at the end of each read slot, so incomplete settling spreads a
   part of each cell into the next ones (exact zero-order-hold discretisation).
 
-Bill: cell capacitors sized from a kT/C noise target (C = kT/v²) at the technology's capacitor
-density; two switches per cell (write and read) at ``technology.switch_area``; write-strobe
-power C_s·V_dd²·f_w; input and readout buffers sized as single-stage transconductors,
-gm = 2π·B·C_load, I = gm/(gm/I_D), P = I·V_dd.
+Bill: cell capacitors sized for ``snr_target`` (C = kT/v², v = pulse peak / 10^(snr/20); no
+smaller than ``min_cell_capacitance``) at the technology's capacitor density; two switches per
+cell (write and read) at ``technology.switch_area``; write-strobe power C_s·V_dd²·f_w; input and
+readout buffers sized as single-stage transconductors, gm = 2π·B·C_load, I = gm/(gm/I_D),
+P = I·V_dd; every area times the card's layout overhead.
+
+Limits: the write rate (a strobe clock) against the card's clock ceiling
+``carrier_max_fraction · f_T``; the area against ``die_area``. With ``write_rate = 0`` the
+design keeps the write rate under that ceiling when twice the input's bandwidth allows.
 
 References
 ----------
@@ -50,6 +56,7 @@ from timescale.plugin import (
     BillItem,
     Design,
     DesignWarning,
+    Limit,
     Method,
     Metric,
     Pulse,
@@ -82,8 +89,13 @@ class AnalogMemoryParams:
                                 doc="time of the first cell's sample after the start of the input record")
     aperture: float = param(0.0, units="s", doc="sampling aperture t_a (averaging window); 0 = instantaneous")
     aperture_jitter: float = param(0.0, units="s", doc="rms jitter of the sampling instants")
-    noise_target: float = param(300e-6, units="V", doc="kT/C noise per cell the cell capacitor is sized for")
-    noise: bool = param(False, doc="add the kT/C noise of each cell to the output")
+    noise_target: float = param(0.0, units="V", doc="kT/C noise per cell the cell capacitor is sized for; "
+                                                    "0 sizes it for snr_target")
+    snr_target: float = param(40.0, units="dB", doc="output peak over rms noise at the peak the cells are "
+                                                    "sized for (noise_target = 0)", bounds=(0.0, 200.0))
+    min_cell_capacitance: float = param(10e-15, units="F", doc="smallest cell capacitor drawn (charge injection "
+                                                               "and switch parasitics; common practice, no source)")
+    noise: bool = param(False, doc="add the kT/C noise of each cell to the output (reported either way)")
     gain_mismatch: float = param(0.0, doc="rms relative gain error from cell to cell")
     droop_time: float = param(0.0, units="s", doc="charge-leakage time constant tau of a cell; 0 = no leakage")
     readout: str = param("ideal", doc="readout buffer response",
@@ -161,9 +173,11 @@ class AnalogMemory(Method):
         for name in ("write_rate", "aperture", "aperture_jitter", "gain_mismatch", "droop_time"):
             if getattr(p, name) < 0:
                 raise ValueError(f"{name} must be >= 0, got {getattr(p, name)!r}")
-        for name in ("oversampling", "noise_target", "readout_bandwidth", "readout_load"):
+        for name in ("oversampling", "readout_bandwidth", "readout_load", "min_cell_capacitance"):
             if not getattr(p, name) > 0:
                 raise ValueError(f"{name} must be > 0, got {getattr(p, name)!r}")
+        if p.noise_target < 0:
+            raise ValueError(f"noise_target must be >= 0 (0 sizes for snr_target), got {p.noise_target!r}")
         if p.strobe_capacitance < 0:
             raise ValueError(f"strobe_capacitance must be >= 0, got {p.strobe_capacitance!r}")
         if p.readout_order < 1:
@@ -173,7 +187,9 @@ class AnalogMemory(Method):
                 f"window_start must lie in [0, {pulse.duration:.6g}) s (inside the input record), "
                 f"got {p.window_start!r}")
         f99 = float(pulse.occupied_bandwidth())
-        f_w = p.write_rate or 2.0 * p.oversampling * f99
+        ceiling = technology.carrier_max_fraction * technology.f_t
+        # self-sized: oversample, but stay under the card's clock ceiling while Nyquist allows
+        f_w = p.write_rate or min(2.0 * p.oversampling * f99, max(ceiling, 2.0 * f99))
         if f_w < 2.0 * f99:
             warnings.warn(
                 f"write rate {f_w / 1e9:.4g} GS/s is below twice the input's 99% bandwidth "
@@ -187,7 +203,8 @@ class AnalogMemory(Method):
         lost_after = max(0, available - used)
         fraction = _energy_fraction(pulse, t_s - 0.5 / f_w, t_s + (used - 0.5) / f_w)
         f_r = f_w / factor
-        cap = costs.capacitance_for_noise(p.noise_target, technology.temperature)
+        v_target = p.noise_target or float(pulse.peak()) / 10.0 ** (p.snr_target / 20.0)
+        cap = max(costs.capacitance_for_noise(v_target, technology.temperature), p.min_cell_capacitance)
         # read starts once the last cell is written; sample k is taken at the end of its slot
         latency = used / f_w + 1.0 / f_r
         max_hold = 1.0 / f_w + used / f_r  # last cell: written last, read last
@@ -203,7 +220,8 @@ class AnalogMemory(Method):
                 f"{p.droop_time * 1e6:.4g} us)", DesignWarning, stacklevel=2)
         notes = (
             f"write {used} of {p.cells} cells at {f_w / 1e9:.4g} GS/s, read at {f_r / 1e6:.4g} MS/s",
-            f"cell capacitance {cap * 1e15:.4g} fF for {p.noise_target * 1e6:.4g} uV rms kT/C noise",
+            f"cell capacitance {cap * 1e15:.4g} fF for {v_target * 1e6:.4g} uV rms kT/C noise"
+            + (" (the smallest cell drawn)" if cap == p.min_cell_capacitance else ""),
         )
         return AnalogMemoryDesign(
             factor=factor, notes=notes, write_rate=f_w, read_rate=f_r, cells=p.cells, cells_used=used,
@@ -257,7 +275,13 @@ class AnalogMemory(Method):
             clean = clean.with_values(pad(clean.values), t0=t_out0)
         out = Pulse(pad(finish(v)), d.read_rate, t_out0, pulse.units, f"{pulse.name} from analog memory")
         settle = readout_settling_error(p.readout, d.readout_cutoff, d.read_rate, p.readout_order)
+        ref = clean.values[0] if clean is not None else out.values[0]
+        k_pk = int(np.argmax(np.abs(ref)))
+        rms = _output_noise(v_noise, droop, filt, k_pk - before) if 0 <= k_pk - before < m else 0.0
         metrics = {
+            "noise_rms": Metric(rms, "V", "output rms noise at the output peak (kT/C of the cells)"),
+            "snr_db": Metric(20.0 * math.log10(abs(ref[k_pk]) / rms) if rms > 0 else math.nan, "dB",
+                             "output peak over rms noise"),
             "record_length": Metric(d.record_length, "s", "input time the cell bank holds"),
             "record_energy_fraction": Metric(d.record_energy_fraction, "",
                                              "fraction of input energy inside the record"),
@@ -293,13 +317,38 @@ class AnalogMemory(Method):
             BillItem("readout buffer", tech.gm_cell_area, p_out, 1,
                      "gm = 2 pi f_readout C_load, I = gm/(gm/I_D), P = I * Vdd"),
         )
+        over = tech.layout_overhead
+        items = tuple(BillItem(i.name, i.area * over, i.power, i.count, f"{i.note}; x {over:g} layout overhead")
+                      for i in items)
         energy = (p_strobe + p_in) * t_write + p_out * t_read
         return Bill(area=sum(i.area for i in items), power=sum(i.power for i in items),
                     energy_per_pulse=energy, bw_internal=max(bw_in, d.readout_cutoff),
                     counts={"capacitors": n, "switches": switches, "buffers": 2}, items=items)
 
 
+    # -- process limits -----------------------------------------------------------------------
+    def limits(self, design: AnalogMemoryDesign, params: AnalogMemoryParams, technology) -> tuple[Limit, ...]:
+        tech = technology
+        return (
+            Limit("write rate (strobe clock)", design.write_rate, tech.carrier_max_fraction * tech.f_t, "Hz",
+                  note=f"card clock ceiling carrier_max_fraction x f_T = {tech.carrier_max_fraction:g} x "
+                       f"{tech.f_t:.3g} Hz: the strobe chain steps once per write period"),
+            Limit("area", self.bill(design, params, tech).area, tech.die_area, "m²", note="card die_area"),
+        )
+
+
 # ---- helpers (pure functions, tested on their own) ----------------------------------------------
+
+def _output_noise(cell_noise: float, droop: np.ndarray, filt, k: int) -> float:
+    """RMS output noise at read sample `k`: independent kT/C samples of rms `cell_noise`, each
+    drooped with its cell and summed through the readout filter's response, V."""
+    if filt is None:
+        return float(cell_noise * droop[k])
+    impulse = np.zeros(k + 1)
+    impulse[0] = 1.0
+    h = ss.lfilter(filt[0], filt[1], impulse)
+    return float(cell_noise * math.sqrt(np.sum(h[::-1] ** 2 * droop[: k + 1] ** 2)))
+
 
 def _energy_fraction(pulse: Pulse, start: float, stop: float) -> float:
     """Fraction of the pulse's energy ∫x² dt that lies in [start, stop).
