@@ -317,6 +317,8 @@ class Suite:
         parameter; ``method name -> {name: value}`` to that method only.
     sweep : Mapping, optional
         ``parameter -> list or range table``; each adds a cube dimension (in this order).
+        ``corner`` (names) and ``temperature`` (K) sweep the card instead: every cell is sized
+        on the typical card at its nominal temperature and evaluated at the corner.
     trials : int
         Monte Carlo trials per cell (a ``trial`` dimension when > 1).
     seed : int, optional
