@@ -265,6 +265,14 @@ def _spiral_point(inductance, width, spacing, substrate_cap):
     return sp.area, srf
 
 
+@functools.lru_cache(maxsize=256)
+def _spiral_grid(k_lo, k_hi, per_decade, width, spacing, substrate_cap):
+    grid = 10.0 ** (np.arange(k_lo, k_hi + 1) / per_decade)
+    pts = np.array([_spiral_point(float(g), width, spacing, substrate_cap) for g in grid])
+    grid.flags.writeable = pts.flags.writeable = False
+    return grid, pts
+
+
 def _spiral_table(inductances, tech, per_decade: int = 16):
     """Spiral areas (m²) and self-resonances (Hz) for many inductances: spirals are sized
     exactly on a fixed log grid (`per_decade` points, shared by every design, cached) and
@@ -272,11 +280,9 @@ def _spiral_table(inductances, tech, per_decade: int = 16):
     ind = np.asarray(inductances, dtype=float)
     if ind.size == 0:
         return np.zeros(0), np.zeros(0)
-    k = np.arange(math.floor(math.log10(ind.min()) * per_decade),
-                  math.ceil(math.log10(ind.max()) * per_decade) + 1)
-    grid = 10.0 ** (k / per_decade)
-    pts = np.array([_spiral_point(float(g), tech.inductor_track_width, tech.inductor_track_spacing,
-                                  tech.inductor_substrate_cap) for g in grid])
+    grid, pts = _spiral_grid(math.floor(math.log10(ind.min()) * per_decade),
+                             math.ceil(math.log10(ind.max()) * per_decade), per_decade,
+                             tech.inductor_track_width, tech.inductor_track_spacing, tech.inductor_substrate_cap)
     if grid.size == 1:
         return np.full(ind.shape, pts[0, 0]), np.full(ind.shape, pts[0, 1])
     with np.errstate(divide="ignore"):
@@ -537,22 +543,20 @@ def _size_lens(pulse, a, b, centre, width, fixed, inverted, params) -> dict:
 
     if fixed is None and params.lens_spread:
         # Φ1 follows each gate's length: one column per gate
-        phis = np.array([params.lens_spread * g / (2 * wb) for g in gates[:, 0]])
-        table = np.array([score(gates[i:i + 1], [phis[i]])[0, 0] for i in range(len(gates))])[:, None]
-        phi_of = lambda gi, pi: phis[gi]  # noqa: E731
+        phi_grid = (params.lens_spread * gates[:, 0] / (2 * wb))[:, None]
+        table = np.array([score(gates[i:i + 1], phi_grid[i])[0, 0] for i in range(len(gates))])[:, None]
     else:
         cols = np.array([fixed]) if fixed is not None else width * _LENS_SPREADS / (2 * wb)
+        phi_grid = np.broadcast_to(cols[None, :], (len(gates), cols.size))
         table = score(gates, cols)
-        phi_of = lambda gi, pi: cols[pi]  # noqa: E731
-    dbp = np.array([[_lens_dbp(g, tp, phi_of(gi, pi), a, b, params.band_margin, inverted)
-                     for pi in range(table.shape[1])] for gi, (g, tp) in enumerate(gates)])
+    dbp = _lens_dbp(gates[:, :1], gates[:, 1:], phi_grid, a, b, params.band_margin, inverted)
     target = params.fidelity_target
     ok = table <= target
     met = bool(ok.any())
     gi, pi = np.unravel_index(int(np.argmin(np.where(ok, dbp, np.inf) if met else table)), table.shape)
     length, taper = (float(v) for v in gates[gi])
     taper = min(taper, 0.5 * length)
-    phi1, est = float(phi_of(gi, pi)), float(table[gi, pi])
+    phi1, est = float(phi_grid[gi, pi]), float(table[gi, pi])
     aperture = length + 2 * phi1 * wb + 2 * taper
     what = "estimated NRMSE" if met else f"fidelity_target {target:g} not reached: best estimated NRMSE"
     note = (f"gate {length * 1e9:.4g} ns with {taper * 1e9:.3g} ns edges, line 1 spreads the "
