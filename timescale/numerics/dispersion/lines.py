@@ -302,6 +302,19 @@ def allpass_section_count(gdd: float, f_lo: float, f_hi: float, fill: float = 1.
     return max(3, int(math.ceil(tau_mid * dw / (2.0 * math.pi * fill))))
 
 
+def _checked_band(gdd, f_lo, f_hi, sections):
+    """(Φ, f_lo, f_hi, sections) checked; the count defaults to :func:`allpass_section_count`."""
+    phi = _checks.finite("gdd", gdd)
+    f_lo = _checks.positive("f_lo", f_lo)
+    f_hi = _checks.positive("f_hi", f_hi)
+    if f_hi <= f_lo:
+        raise ValueError(f"f_hi ({f_hi} Hz) must exceed f_lo ({f_lo} Hz)")
+    n = allpass_section_count(phi, f_lo, f_hi) if sections is None else int(sections)
+    if n < 1:
+        raise ValueError(f"sections must be >= 1, got {sections!r}")
+    return phi, f_lo, f_hi, n
+
+
 def allpass_placement(gdd: float, f_lo: float, f_hi: float, sections: int | None = None):
     """Starting placement of second-order sections for a linear group delay over a band.
 
@@ -327,14 +340,7 @@ def allpass_placement(gdd: float, f_lo: float, f_hi: float, sections: int | None
     we, target : ndarray
         The extended band (rad/s) and the delay (s) the placement followed.
     """
-    phi = _checks.finite("gdd", gdd)
-    f_lo = _checks.positive("f_lo", f_lo)
-    f_hi = _checks.positive("f_hi", f_hi)
-    if f_hi <= f_lo:
-        raise ValueError(f"f_hi ({f_hi} Hz) must exceed f_lo ({f_lo} Hz)")
-    n = allpass_section_count(phi, f_lo, f_hi) if sections is None else int(sections)
-    if n < 1:
-        raise ValueError(f"sections must be >= 1, got {sections!r}")
+    phi, f_lo, f_hi, n = _checked_band(gdd, f_lo, f_hi, sections)
     w_lo, w_hi = 2 * math.pi * f_lo, 2 * math.pi * f_hi
     wc = 0.5 * (w_lo + w_hi)
     dw = w_hi - w_lo
@@ -394,14 +400,7 @@ def design_allpass(gdd: float, f_lo: float, f_hi: float, *, sections: int | None
     ValueError
         When the band is invalid or more than `max_sections` sections are needed.
     """
-    phi = _checks.finite("gdd", gdd)
-    f_lo = _checks.positive("f_lo", f_lo)
-    f_hi = _checks.positive("f_hi", f_hi)
-    if f_hi <= f_lo:
-        raise ValueError(f"f_hi ({f_hi} Hz) must exceed f_lo ({f_lo} Hz)")
-    n = allpass_section_count(phi, f_lo, f_hi) if sections is None else int(sections)
-    if n < 1:
-        raise ValueError(f"sections must be >= 1, got {sections!r}")
+    phi, f_lo, f_hi, n = _checked_band(gdd, f_lo, f_hi, sections)
     if n > max_sections:
         raise ValueError(
             f"a linear group delay of {phi:.4g} s² over {f_lo:.4g}-{f_hi:.4g} Hz needs about {n} "
