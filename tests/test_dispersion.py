@@ -225,7 +225,7 @@ def test_bridged_t_cascade_against_ngspice(tmp_path):
     assert el.bridged == 3
     lines = ["* bridged-T all-pass cascade", "vs src 0 ac 2", f"rs src n0 {r0}"]
     for k, (w0, q) in enumerate(fit.line.second):
-        la, ca, lb, cb = dsp.lattice_arms(w0, q, r0)
+        la, ca, lb, _ = dsp.lattice_arms(w0, q, r0)
         c2 = 2 / (r0 * w0 * (q - 1 / q))
         a, b, m = f"n{k}", f"n{k + 1}", f"m{k}"
         lines += [f"c{k}a {a} {m} {ca:.12e}", f"c{k}b {m} {b} {ca:.12e}", f"l{k}br {a} {b} {2 * la:.12e}",

@@ -677,12 +677,12 @@ class ChirpDispersive(Method):
                          + (" (time-reversed image)" if m < 0 else ""))
         else:
             notes.append(f"time stretch: Φ1 = {phi1:.4g} s², Φ2 = {phi2:.4g} s², M = {m:.4g}")
-        core = dict(factor=a, arrangement=params.arrangement, magnification=m, gdd_chirp=phi1, gdd_line=phi2,
-                    gdd_focal=phif, chirp_rate=mu, chirp_span=span, signal_band=b, internal_band=span + 2 * b,
-                    window=tuple(win), taper=taper, aperture=aperture, bias=peak / params.modulation_index,
-                    out_rate=pulse.rate / a, penalty_edge=pen_edge, penalty_nrmse=pen,
-                    nrmse_estimate=sized["estimate"], input_peak=peak,
-                    touchstone=params.touchstone if measured is not None else "")
+        core = {"factor": a, "arrangement": params.arrangement, "magnification": m, "gdd_chirp": phi1,
+                "gdd_line": phi2, "gdd_focal": phif, "chirp_rate": mu, "chirp_span": span, "signal_band": b,
+                "internal_band": span + 2 * b, "window": tuple(win), "taper": taper, "aperture": aperture,
+                "bias": peak / params.modulation_index, "out_rate": pulse.rate / a, "penalty_edge": pen_edge,
+                "penalty_nrmse": pen, "nrmse_estimate": sized["estimate"], "input_peak": peak,
+                "touchstone": params.touchstone if measured is not None else ""}
         # carrier and line impedance: given, fixed by a measured line, or the cheapest on the card
         internal = span + 2 * b
         half = 0.5 * internal * (1 + params.band_margin)
@@ -831,9 +831,9 @@ class ChirpDispersive(Method):
         jitter = costs.oscillator_jitter(tech.vco_fom, tech.chirp_source_power, 1.0 / active, internal / 2) \
             if final else 0.0
         notes = (f"internal band {internal / 1e9:.4g} GHz about {f_c / 1e9:.4g} GHz; {reason}",
-                 f"line loss {' + '.join(f'{v:.3g}' for v in chain['loss'])} dB at the carrier, made up by "
-                 f"{' + '.join(str(k) for k in chain['amps'])} amplifier(s); chain noise figure "
-                 f"{10 * math.log10(chain['factor']):.3g} dB; {sources} chirp source core(s)")
+                 (f"line loss {' + '.join(f'{v:.3g}' for v in chain['loss'])} dB at the carrier, made up by "
+                  f"{' + '.join(str(k) for k in chain['amps'])} amplifier(s); chain noise figure "
+                  f"{10 * math.log10(chain['factor']):.3g} dB; {sources} chirp source core(s)"))
         return ChirpDesign(
             **core, notes=notes, line_model=params.line, carrier=f_c, impedance=r0,
             line_band=tuple(band2), line1_band=tuple(band1) if lens else (0.0, 0.0),
@@ -1012,20 +1012,14 @@ class ChirpDispersive(Method):
             p = dsp.square_law(y, design.detector_cutoff)
             p_bg, p_x = p[0], p[1:]
             e_bg = np.sqrt(np.maximum(2 * p_bg, 0.0))
-        else:
-            v = y.values if y.is_envelope else analytic(y.values)
-            v_bg, v_x = v[0], v[1:]
-            e_bg = np.abs(v_bg)
-            if det == "magnitude":
-                e_x = np.abs(v_x)
-            else:  # coherent: in-phase part against the carrier-only record
-                e_x = np.real(v_x * np.conj(v_bg)) / np.maximum(e_bg, 1e-300)
-        ref = float(e_bg.max())
-        eps = 0.02 * ref
-        if det == "square-law":
+            ref = float(e_bg.max())
+            eps = 0.02 * ref
             out = (p_x - p_bg) * (ref / (2 * p_bg + eps * eps) if params.calibrate else 1 / max(ref, 1e-300))
         else:
-            out = (e_x - e_bg) * (ref * e_bg / (e_bg ** 2 + eps * eps) if params.calibrate else 1.0)
+            v = y.values if y.is_envelope else analytic(y.values)
+            e_bg = np.abs(v[0])
+            ref = float(e_bg.max())
+            out = sizing.detect_against(v[1:], v[0], det, params.calibrate)
         # keep the gate's image (and a margin) so the record is not mostly empty
         keep = np.flatnonzero(e_bg > 1e-4 * ref)
         i0, i1 = int(keep[0]), int(keep[-1]) + 1

@@ -26,7 +26,8 @@ import math
 import numpy as np
 import scipy.fft as sfft
 
-__all__ = ["tukey_gate", "calibrated_difference", "stretch_error_table", "lens_error_table", "GRID_BANDS"]
+__all__ = ["GRID_BANDS", "calibrated_difference", "detect_against", "lens_error_table", "stretch_error_table",
+           "tukey_gate"]
 
 #: Sample rate of the sizing grid, in units of the pulse's 99.99 % band: the gate edges' content
 #: well beyond the band must be on the grid (the lens pupil cuts it, the residual dispersion
@@ -165,7 +166,7 @@ def _grid_pulse(frozen, rate, t0, centre, half, band):
     x = Pulse(frozen.a, rate, t0, "V", "sizing")
     fs = min(rate, GRID_BANDS * band)
     half = half + 4.0 / fs
-    n = sfft.next_fast_len(int(math.ceil(2 * half * fs)) + 1)
+    n = sfft.next_fast_len(math.ceil(2 * half * fs) + 1)
     start = centre - 0.5 * (n - 1) / fs
     pad_b = max(0.0, x.t0 - start) + 4 / rate
     pad_a = max(0.0, start + n / fs - x.t_end) + 4 / rate
@@ -173,7 +174,10 @@ def _grid_pulse(frozen, rate, t0, centre, half, band):
     return xs, start + np.arange(n) / fs, fs, float(np.max(np.abs(x.values)))
 
 
-def _detect_rows(y_x, y_bg, detector, calibrate):
+def detect_against(y_x, y_bg, detector, calibrate):
+    """Detected records `y_x` (complex envelopes or analytic signals) against the carrier-only
+    record `y_bg`: the envelope |y_x|, or for the "coherent" detector the in-phase part
+    Re{y_x·y_bg*}/|y_bg|, less the carrier-only envelope (:func:`calibrated_difference`)."""
     e_bg = np.abs(y_bg)
     if detector == "coherent":
         e_x = np.real(y_x * np.conj(y_bg)) / np.maximum(e_bg, 1e-300)
@@ -215,7 +219,7 @@ def _table(key, frozen, rate, t0, centre, gates, phis, mi, detector, calibrate, 
             spectra.append(sfft.fft(pupil * d1, axis=-1) * np.conj(h))
         else:
             spectra.append(sfft.fft(e, axis=-1)[:, None, :] * h)
-    out = _detect_rows(sfft.ifft(spectra[1], axis=-1), sfft.ifft(spectra[0], axis=-1), detector, calibrate)
+    out = detect_against(sfft.ifft(spectra[1], axis=-1), sfft.ifft(spectra[0], axis=-1), detector, calibrate)
     err = _nrmse(out, xs)
     err.flags.writeable = False
     return err
