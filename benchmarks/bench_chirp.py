@@ -8,7 +8,10 @@ Run: ``python benchmarks/bench_chirp.py``. Prints times measured in this run and
    same chain convolving with the sampled line impulse response h(t) = e^{jt²/(2Φ)}/√(2πjΦ)
    using ``scipy.signal.fftconvolve``;
 2. a 100-point sweep of the stretch factor of an invented UWB pulse through
-   ``timescale.stretch`` (design + simulate + bill) against the fftconvolve chain per point.
+   ``timescale.stretch`` (design + simulate + bill) against the fftconvolve chain per point;
+3. the share of the self-sizing in that sweep: ``design`` alone per point against the whole
+   ``timescale.stretch``, for the first point of a new pulse (its sizing table is computed
+   then) and warm, on the 130 nm-class card, stretch and lens.
 """
 
 from __future__ import annotations
@@ -94,6 +97,29 @@ def main():
     print(f"100-point sweep: timescale.stretch (design+simulate+bill) {t_sweep:.2f} s; chain only: "
           f"timescale.dispersion {t_core:.3f} s, fftconvolve {t_plain:.3f} s; ratios plain/ours = "
           f"{t_plain / t_core:.2f} (chain), {t_plain / t_sweep:.3f} (full method)")
+
+
+    # -- 3. the self-sizing's share: design alone against the whole stretch -------------------
+    tech = timescale.preset("example-cmos130")
+    for arrangement in ("stretch", "lens"):
+        params = method.make_params(arrangement=arrangement)
+        pulse = Pulse.gaussian(fwhm=1e-9, center=5e-9, duration=12e-9, rate=20e9, name="invented-1ns")
+        t = time.perf_counter()
+        method.design(pulse, 2.0, params, tech)
+        t_first = time.perf_counter() - t
+        # two interleaved factor sets, so neither loop finds the other's lines in the caches
+        pts = np.linspace(1.5, 4.0, 40)
+        t = time.perf_counter()
+        for a in pts[::2]:
+            method.design(pulse, float(a), params, tech)
+        t_design = (time.perf_counter() - t) / pts[::2].size
+        t = time.perf_counter()
+        for a in pts[1::2]:
+            timescale.stretch(pulse, method, float(a), technology=tech, arrangement=arrangement, seed=0)
+        t_whole = (time.perf_counter() - t) / pts[1::2].size
+        print(f"{arrangement}: design of a new pulse {t_first * 1e3:.1f} ms, warm {t_design * 1e3:.1f} ms; "
+              f"whole stretch {t_whole * 1e3:.1f} ms; design share warm {t_design / t_whole:.2f}, "
+              f"first/warm {t_first / t_design:.1f}")
 
 
 if __name__ == "__main__":
