@@ -3,11 +3,12 @@
 Run: ``python benchmarks/bench_chirp.py [--repeat 5]``. Prints CPU times measured in this run
 (BLAS on one thread; the **median** of the repeats and the **first call**, the load average
 beside them) and their ratios, and checks that both chains give the same output (max |difference|
-relative to the peak, on the plain chain's grid). Two cases:
+relative to the peak, on the plain chain's grid). Four cases:
 
 The first two compare the chains with each other (the plain one samples the line's impulse
 response over the whole sampled band and cuts it there, so the two differ most where the
-signal fills that band); the third checks both against a closed form.
+signal fills that band); the third checks both against a closed form; the fourth times the
+method's own sizing.
 
 1. one 1e6-sample time stretch: chirp × (bias + pulse) → ideal quadratic line → envelope,
    via :mod:`timescale.dispersion` (FFT with spread padding at next_fast_len sizes) against the
@@ -16,6 +17,9 @@ signal fills that band); the third checks both against a closed form.
 2. a 100-point sweep of the stretch factor of an invented UWB pulse through
    ``timescale.stretch`` (design + simulate + bill) against the fftconvolve chain per point;
 3. a Gaussian envelope through a quadratic-phase line, both chains against the closed form.
+4. the share of the self-sizing in that sweep: ``design`` alone per point against the whole
+   ``timescale.stretch``, for the first point of a new pulse (its sizing table is computed
+   then) and warm, on the 130 nm-class card, stretch and lens.
 """
 
 from __future__ import annotations
@@ -164,6 +168,28 @@ def main(argv=None):
           f"{m_o * 1e3:.1f} ms, fftconvolve {m_p * 1e3:.1f} ms; max error against the closed form: ours "
           f"{np.max(np.abs(yo3 - exact(to3))):.1e}, fftconvolve {np.max(np.abs(yp3 - exact(tp3))):.1e} of the "
           f"input peak [load {load():.2f}]")
+
+    # -- 4. the self-sizing's share: design alone against the whole stretch -------------------
+    tech = timescale.preset("example-cmos130")
+    for arrangement in ("stretch", "lens"):
+        params = method.make_params(arrangement=arrangement)
+        pulse = Pulse.gaussian(fwhm=1e-9, center=5e-9, duration=12e-9, rate=20e9, name="invented-1ns")
+        t = time.perf_counter()
+        method.design(pulse, 2.0, params, tech)
+        t_first = time.perf_counter() - t
+        # two interleaved factor sets, so neither loop finds the other's lines in the caches
+        pts = np.linspace(1.5, 4.0, 40)
+        t = time.perf_counter()
+        for a in pts[::2]:
+            method.design(pulse, float(a), params, tech)
+        t_design = (time.perf_counter() - t) / pts[::2].size
+        t = time.perf_counter()
+        for a in pts[1::2]:
+            timescale.stretch(pulse, method, float(a), technology=tech, arrangement=arrangement, seed=0)
+        t_whole = (time.perf_counter() - t) / pts[1::2].size
+        print(f"{arrangement}: design of a new pulse {t_first * 1e3:.1f} ms, warm {t_design * 1e3:.1f} ms; "
+              f"whole stretch {t_whole * 1e3:.1f} ms; design share warm {t_design / t_whole:.2f}, "
+              f"first/warm {t_first / t_design:.1f}")
     print(f"load average {load():.2f} at the end")
 
 

@@ -63,7 +63,9 @@ def test_lens_is_time_reversed_and_recorded():
     # Invented asymmetric pair of pulses (a monocycle reversed is only its negative).
     g = Pulse.gaussian(sigma=60e-12, center=1.0e-9, duration=3e-9, rate=100e9)
     x = g.with_values(g.values + 0.5 * np.roll(g.values, 25), name="invented-pair")
-    oc = timescale.stretch(x, METHOD, 4.0, seed=0, arrangement="lens")
+    # the lens images exactly but for its pupil, which the sizing makes as small as asked: a
+    # tight fidelity_target (the default 0.02 leaves ≈ 0.02) shows the image itself
+    oc = timescale.stretch(x, METHOD, 4.0, seed=0, arrangement="lens", fidelity_target=1e-4)
     d = oc.design
     assert oc.orientation == -1 and "reversed" in oc.path
     assert 1 / d.gdd_chirp + 1 / d.gdd_line == pytest.approx(1 / d.gdd_focal, rel=1e-12)
@@ -209,7 +211,8 @@ def test_line_loss_from_q_is_made_up_to_meet_the_target():
     oc = timescale.stretch(x, METHOD, 2.0, seed=0)
     d = oc.design
     assert d.line_loss[0] == pytest.approx(costs.lc_line_loss_db(d.carrier, d.delay, tech.inductor_q))
-    assert d.line_loss[0] > 100  # hundreds of dB: passive LTI on-chip delay is lossy (Ming et al., JSSC 2022)
+    # tens of dB: passive LTI on-chip delay of ~1 ns at several GHz is lossy (Ming et al., JSSC 2022)
+    assert d.line_loss[0] > 20
     assert d.amplifiers[0] > 0
     assert d.input_noise <= d.input_peak / 10 ** (40.0 / 20)
     assert {lm.name: lm for lm in oc.limits}["noise with the line loss made up"].met
@@ -246,8 +249,9 @@ def test_noise_in_the_waveform_matches_the_reported_noise():
 
 
 def test_card_limits_make_the_design_infeasible_with_a_reason():
-    # issue 13: on a mid-range card a self-sized 2× stretcher needs a chirp and carrier far above
-    # the card's ceiling (carrier_max_fraction·f_T) and spirals that resonate below its band
+    # issue 13: on a mid-range card a self-sized 2× stretcher of a 235 ps pulse needs a chirp
+    # band above the card's ceiling (carrier_max_fraction·f_T) and spirals that resonate below
+    # its band, even at the lowest line impedance the sizing tries
     from timescale.testing import default_pulse
 
     tech = timescale.preset("example-balanced")
@@ -255,26 +259,32 @@ def test_card_limits_make_the_design_infeasible_with_a_reason():
     lim = {lm.name: lm for lm in oc.limits}
     assert not oc.feasible
     assert lim["carrier frequency"].allowed == pytest.approx(tech.carrier_max_fraction * tech.f_t)
-    assert not lim["carrier frequency"].met and not lim["highest chirp or line frequency"].met
+    assert lim["carrier frequency"].need == pytest.approx(oc.design.carrier)
+    assert not lim["highest chirp or line frequency"].met
     # f_SR of the largest spiral from its track-to-substrate capacitance (Yue & Wong 1998)
-    ind = max(r0_l for r0_l in _largest_inductances(oc))
+    ind = max(_largest_inductances(oc))
     sp = costs.spiral_for_inductance(ind, tech.inductor_track_width, tech.inductor_track_spacing)
     srf = costs.spiral_self_resonance(sp.inductance, costs.spiral_track_length(sp.turns, sp.d_out, sp.d_in),
                                       tech.inductor_track_width, tech.inductor_substrate_cap)
-    assert lim["spiral self-resonance"].allowed == pytest.approx(srf)
+    # the method interpolates spiral figures on a log grid of 16 points a decade
+    assert lim["spiral self-resonance"].allowed == pytest.approx(srf, rel=0.02)
     assert not lim["spiral self-resonance"].met
 
 
 def _largest_inductances(oc):
-    # the all-pass lattice's cross-arm inductance R0·Q/ω0 of each section (standard network theory)
+    # the spirals of each section at the line impedance R0 the design chose: a bridged-T
+    # (Q ≥ 1) has a bridge 2·L_a = 2R0/(Qω0) and a shunt arm L_b/2 = R0·Q/(2ω0), half the
+    # lattice cross arm L_b = R0·Q/ω0; a lattice (Q < 1) has L_a and L_b (standard network
+    # theory; Bartlett's bisection theorem); sections at the phase-area marks
     sec = np.asarray(oc.design.sections, float).reshape(-1, 2)
-    if sec.size:
-        return list(50.0 * sec[:, 1] / sec[:, 0])
-    lo, hi = oc.design.line_band
-    n = dsp.allpass_section_count(oc.design.gdd_line, lo, hi)
-    w0 = 2 * math.pi * np.linspace(lo, hi, n + 2)[1:-1]
-    q = w0 / (1.2 * 2 * math.pi * (hi - lo) / n)
-    return list(50.0 * q / w0)
+    if not sec.size:
+        lo, hi = oc.design.line_band
+        w0, q, _, _ = dsp.allpass_placement(oc.design.gdd_line, lo, hi)
+        sec = np.column_stack([w0, q])
+    r0, w0, q = oc.design.impedance, sec[:, 0], sec[:, 1]
+    bridged = np.maximum(2 * r0 / (q * w0), r0 * q / (2 * w0))
+    lattice = np.maximum(r0 / (q * w0), r0 * q / w0)
+    return list(np.where(q >= 1, bridged, lattice))
 
 
 def test_compare_at_factor_50_and_the_demo_mark_the_stretcher_infeasible():
@@ -294,30 +304,116 @@ def test_compare_at_factor_50_and_the_demo_mark_the_stretcher_infeasible():
     assert all(str(b) for b in np.ravel(demo.binding_limit.values))
 
 
+CMOS130 = "example-cmos130"
+
+
+def _one_ns():
+    # invented scenario: a 1 ns FWHM Gaussian (99 % band 0.68 GHz, 99.9 % band 0.87 GHz)
+    return Pulse.gaussian(fwhm=1e-9, center=5e-9, duration=12e-9, rate=20e9, name="invented-1ns")
+
+
 def test_trade_fact_lc_chirp_stretcher_area():
     # Trade fact (common practice, no source): an on-chip LC-line chirp stretcher took ≈ 4.5 mm²
-    # for ≈ 2×. Our self-sized 2× design for a ~1 ns pulse on the 130 nm-class card is NOT within
-    # 2× of it, and physics says why (docs/theory/chirp-dispersive.md, "Cost, noise and limits"):
-    # the method holds the dispersion penalty Φ2ω_B²/(2M) to 0.5 rad at the 99.9 % band edge over a
-    # gate T_w ≈ 11/B long, so the chirp spans T_w·(α−1)·ω_B²/(4π·φ·α) ≈ 30 GHz and the line needs a
-    # delay-bandwidth product of several hundred: ~300 all-pass sections whose cross-arm spirals
-    # (L = R0·Q/ω0) are tens of nH. The design is infeasible on this card (carrier above 0.3·f_T,
-    # spirals resonating far below the band, area beyond the die), with an area ~30× the trade's.
-    tech = timescale.preset("example-cmos130")
-    x = Pulse.gaussian(fwhm=1e-9, center=5e-9, duration=12e-9, rate=20e9)
-    oc = timescale.stretch(x, METHOD, 2.0, technology=tech)
-    d = oc.design
-    t_w = d.window[1] - d.window[0]
+    # for ≈ 2×. The self-sized 2× stretch of a 1 ns pulse on the 130 nm-class card must land
+    # within 2× of it, buildable (docs/theory/chirp-dispersive.md, "Worked example").
+    tech = timescale.preset(CMOS130)
+    x = _one_ns()
+    oc = timescale.stretch(x, METHOD, 2.0, technology=tech, seed=0)
+    d, b = oc.design, oc.bill
+    assert oc.feasible, [lm.describe() for lm in oc.limits if not lm.met]
+    assert 4.5e-6 / 2 <= b.area <= 2 * 4.5e-6
+    # the chirp covers the gate: span = T_g/(2π|Φ1|) (μ = 1/(2πΦ1), dispersion time-stretch
+    # literature), and Φ2 = (M − 1)Φ1 = M·Φ_r with Φ_r the residual dispersion of the penalty
+    t_g = d.window[1] - d.window[0]
+    assert d.chirp_span == pytest.approx(t_g / (2 * math.pi * d.gdd_chirp), rel=1e-12)
     wb = 2 * math.pi * d.signal_band
-    assert d.chirp_span == pytest.approx(t_w * (2.0 - 1) * wb ** 2 / (4 * math.pi * 0.5 * 2.0), rel=1e-9)
-    assert not oc.feasible
-    assert oc.bill.area > 2 * 4.5e-6
-    # the dimensionless design does not depend on the pulse width: a 4 ns pulse needs the same
-    # number of sections (the delay-bandwidth product is fixed by the penalty and the gate in units
-    # of 1/B), so no pulse width brings the section count down to a few tens
+    assert d.penalty_edge == pytest.approx(d.gdd_line * wb ** 2 / (2 * 2.0), rel=1e-12)  # Φ2ω_B²/(2M)
+    # hand check of the line: band (span + 2B)(1 + margin), delay spread |Φ2|·2π·band =
+    # (M − 1)·T_g·1.1 + |Φ2|·4πB·1.1; a few ns over several GHz, a delay-bandwidth product of tens
+    band = (d.chirp_span + 2 * d.signal_band) * 1.1
+    spread = abs(d.gdd_line) * 2 * math.pi * band
+    assert spread == pytest.approx((2.0 - 1) * t_g * 1.1 + abs(d.gdd_line) * 4 * math.pi * d.signal_band * 1.1)
+    assert d.dbp == pytest.approx(spread * band, rel=1e-9)
+    assert 10 <= d.dbp <= 100 and 1e-9 <= spread <= 6e-9 and d.chirp_span <= 10e9
+    # each second-order section carries 2π of phase: at least ∫τ dω/2π ≥ DBP/2 of them, tens
+    assert d.dbp / 2 <= b.counts["sections"] <= d.dbp and b.counts["sections"] <= 40
+    # the carrier and the line band stay under the card's ceiling (carrier_max_fraction·f_T)
+    assert d.line_band[1] <= tech.carrier_max_fraction * tech.f_t
+    # the waveform meets the fidelity the sizing aimed for, and the noise target
+    nrmse = float(metrics.fit_reference(oc.pulse, x, 2.0, 1).nrmse[0])
+    assert nrmse <= 1.1 * 0.02 and nrmse == pytest.approx(d.nrmse_estimate, rel=0.1)
+    assert oc.metrics["snr_db"].value >= 40.0
+    # the design is dimensionless in units of 1/B: a 4 ns pulse needs the same sections (its
+    # elements, delays and so its area scale up with the pulse)
     y = Pulse.gaussian(fwhm=4e-9, center=20e-9, duration=48e-9, rate=5e9)
     wide = timescale.stretch(y, METHOD, 2.0, technology=tech)
-    assert wide.bill.counts["sections"] == pytest.approx(oc.bill.counts["sections"], rel=0.02)
+    assert wide.bill.counts["sections"] == oc.bill.counts["sections"]
+    assert wide.design.dbp == pytest.approx(d.dbp, rel=0.02)
+
+
+def test_lc_chirp_stretcher_against_the_switched_gmc_line():
+    # Trade facts (common practice, no source): the LC chirp stretcher (≈ 4.5 mm² for ≈ 2×) took
+    # about 3× the area of a switched gm-C delay line (≈ 1.5 mm² at ≈ 1.8×); an active delay needs
+    # 1/16 of the area of a comparable LC line (Buckwalter & Hajimiri, RFIC 2004, found). Sign
+    # and order only: the LC line is the larger, by less than a decade beyond the fact. The
+    # gm-C side is billed by the switched-bandwidth method (its calibration is its own): where it
+    # bills under its fact the ratio grows (docs/theory/chirp-dispersive.md, "Worked example").
+    tech = timescale.preset(CMOS130)
+    x = _one_ns()
+    lc = timescale.stretch(x, METHOD, 2.0, technology=tech)
+    gmc = timescale.stretch(x, "switched-bandwidth", 1.8, technology=tech)
+    ratio = lc.bill.area / gmc.bill.area
+    assert 1.0 < ratio < 30.0
+
+
+def test_stretch_and_compression_limits_on_the_130nm_card():
+    # compression needs the chirp to cover the same gate at |M − 1|/|M| = 1 instead of 1/2:
+    # twice the span of the 2× stretch; on the 130 nm-class card its band no longer fits under
+    # the ceiling (carrier_max_fraction·f_T), and the outcome says so
+    tech = timescale.preset(CMOS130)
+    x = _one_ns()
+    up = timescale.stretch(x, METHOD, 2.0, technology=tech).design
+    down = timescale.stretch(x, METHOD, 0.5, technology=tech)
+    assert down.design.chirp_span == pytest.approx(2 * up.chirp_span, rel=1e-9)
+    assert not down.feasible
+    assert not {lm.name: lm for lm in down.limits}["highest chirp or line frequency"].met
+
+
+@pytest.mark.parametrize("arrangement", ["stretch", "lens"])
+def test_sizing_estimate_is_the_simulated_error(arrangement):
+    # the sizing scores its candidates with an equivalent of the ideal-line chain on the input
+    # time scale: chirp Φ1 + line Φ2 = rescaling by M after the residual dispersion Φ2/M (the
+    # Fresnel transforms combine; its sideband phase is the penalty cos(Φ2ω²/(2M)), Han &
+    # Jalali 2003, from memory); line–lens–line = an image of the input seen through the lens
+    # pupil (Kolner 1994). The method's own simulation agrees with the estimate.
+    x = uwb_pulse()
+    for a in (0.5, 3.0):
+        oc = timescale.stretch(x, METHOD, a, seed=0, arrangement=arrangement)
+        got = float(metrics.fit_reference(oc.pulse, x, a, oc.orientation).nrmse[0])
+        assert oc.design.nrmse_estimate <= 0.02
+        assert got == pytest.approx(oc.design.nrmse_estimate, rel=0.1)
+
+
+def test_given_parameters_are_kept():
+    # what the user fixes is used as given; the rest is sized around it
+    x = uwb_pulse()
+    tech = timescale.preset("example-balanced")
+    p = METHOD.make_params(penalty_phase=0.8, gate=0.5e-9, taper=0.1e-9, carrier=60e9, impedance=25.0)
+    with pytest.warns(DesignWarning, match="fidelity_target 0.02 not reached"):  # said, not hidden
+        d = METHOD.design(x, 2.0, p, tech)
+    assert d.penalty_edge == pytest.approx(0.8, rel=1e-12)
+    assert d.window[1] - d.window[0] == pytest.approx(0.5e-9) and d.taper == pytest.approx(0.1e-9)
+    assert d.carrier == 60e9 and d.impedance == 25.0
+    mu = dsp.chirp_rate_from_gdd(300 * PS2)
+    d = METHOD.design(x, 2.0, METHOD.make_params(chirp_rate=mu), tech)
+    assert d.gdd_chirp == pytest.approx(300 * PS2, rel=1e-12) and d.gdd_line == pytest.approx(300 * PS2)
+    # a tighter fidelity target takes a slower penalty (smaller Φ_r) and a longer line
+    loose = METHOD.design(x, 2.0, METHOD.make_params(), tech)
+    tight = METHOD.design(x, 2.0, METHOD.make_params(fidelity_target=0.005), tech)
+    assert tight.nrmse_estimate <= 0.005 < loose.nrmse_estimate <= 0.02
+    assert tight.dbp > loose.dbp
+    with pytest.raises(ValueError, match="taper"):
+        METHOD.design(x, 2.0, METHOD.make_params(gate=0.2e-9, taper=0.15e-9), tech)
 
 
 def test_bad_params_name_themselves():
@@ -354,7 +450,8 @@ def _file_for(design, tmp_path):
     pad = 0.1 * (hi - lo)
     delay = abs(design.gdd_line) * math.pi * (hi - lo + 2 * pad) + 0.5e-9
     step = 1.0 / (2 * math.pi * 2 * delay)
-    freq = np.arange(lo - pad, hi + pad + step / 2, step)
+    # the self-sized line may start near DC: the file then starts at half its lower edge
+    freq = np.arange(max(lo - pad, 0.5 * lo), hi + pad + step / 2, step)
     line = dsp.QuadraticLine(gdd=design.gdd_line, center=0.5 * (freq[0] + freq[-1]), delay=delay)
     return _write_s2p(tmp_path / "invented-line", line, freq), line
 

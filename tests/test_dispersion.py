@@ -163,6 +163,102 @@ def test_allpass_cascade_fits_linear_delay():
     assert fit.ripple_rms < 0.01 * gdd * (w[-1] - w[0])
 
 
+def _bridged_t_s21(w, z1, z2, z3, r0):
+    """S21 of a symmetric bridged-T (series arms z1, shunt z2 from their junction, bridge z3)
+    between r0 terminations, by nodal analysis with the middle node eliminated."""
+    y1, y2, y3 = 1 / z1, 1 / z2, 1 / z3
+    y33 = 2 * y1 + y2
+    y11 = y1 + y3 - y1 * y1 / y33
+    y21 = -y3 - y1 * y1 / y33
+    return -2 * y21 * r0 / ((1 + y11 * r0) ** 2 - (y21 * r0) ** 2)
+
+
+@pytest.mark.parametrize("q", [1.0, 1.7, 6.0, 40.0])
+def test_bridged_t_section_is_the_second_order_allpass(q):
+    # Bartlett's bisection theorem (from memory): a symmetric bridged-T with series arms Z1,
+    # bridge Z3 and shunt Z2 is the lattice Z_a = Z1 ∥ Z3/2, Z_b = Z1 + 2·Z2; the elements the
+    # bill uses (series C_a, bridge 2·L_a, shunt L_b/2 + C2) are checked here by plain nodal
+    # analysis against H(s) = (s² − (ω0/Q)s + ω0²)/(s² + (ω0/Q)s + ω0²) (standard result)
+    r0, w0 = 25.0, 2 * math.pi * 6e9
+    w = 2 * math.pi * np.linspace(0.2e9, 20e9, 3001)
+    s = 1j * w
+    la, ca, lb, cb = dsp.lattice_arms(w0, q, r0)
+    assert la * ca == pytest.approx(1 / w0 ** 2) and lb * cb == pytest.approx(1 / w0 ** 2)
+    assert (la / ca) * (lb / cb) == pytest.approx(r0 ** 4)  # Z_a·Z_b = R0² (constant resistance)
+    el = dsp.allpass_elements([w0], [q], r0)
+    assert el.bridged == 1 and el.lattice == 0
+    c_series = el.capacitors[0]
+    l_bridge, l_shunt = el.inductors
+    c_shunt = el.capacitors[2] if el.capacitors.size > 2 else math.inf  # Q = 1: the shunt C is a wire
+    assert c_series == pytest.approx(ca) and l_bridge == pytest.approx(2 * la) and l_shunt == pytest.approx(lb / 2)
+    z1 = 1 / (s * c_series)
+    z2 = s * l_shunt + (1 / (s * c_shunt) if math.isfinite(c_shunt) else 0.0)
+    z3 = s * l_bridge
+    h = _bridged_t_s21(w, z1, z2, z3, r0)
+    want = (s * s - (w0 / q) * s + w0 * w0) / (s * s + (w0 / q) * s + w0 * w0)
+    assert np.max(np.abs(h - want)) < 1e-9
+    # and its group delay (central differences on this grid: a per cent at the sharpest peak)
+    tau = dsp.group_delay_of(w, h)[1:-1]
+    assert np.allclose(tau, dsp.allpass2_delay(w0, q, w[1:-1]), rtol=1e-2, atol=1e-15)
+
+
+def test_low_q_sections_are_billed_as_lattice():
+    # below Q = 1 the bridged-T's shunt capacitor 2/(R0ω0(Q − 1/Q)) would be negative: the
+    # section is a balanced lattice, two of each arm (four spirals, four capacitors)
+    el = dsp.allpass_elements([2e10, 2e10], [0.7, 3.0], 50.0)
+    assert (el.bridged, el.lattice) == (1, 1)
+    assert el.inductors.size == 2 + 4 and el.capacitors.size == 3 + 4
+    assert np.all(el.inductors > 0) and np.all(el.capacitors > 0)
+
+
+@pytest.mark.ngspice
+@pytest.mark.skipif(__import__("shutil").which("ngspice") is None, reason="the ngspice binary is not installed")
+def test_bridged_t_cascade_against_ngspice(tmp_path):
+    # independent solver: three bridged-T sections of a fitted cascade as an ngspice netlist
+    # (AC analysis, 50 Ω-class terminations); the group delay of v(out)/v(in) against the
+    # cascade's closed-form delay Σ τ_k (standard result)
+    import subprocess
+
+    fit = dsp.design_allpass(2e-20, 4e9, 8e9)  # three sections, Q 1.9 to 5.3
+    r0 = 20.0
+    el = dsp.allpass_elements([w for w, _ in fit.line.second], [q for _, q in fit.line.second], r0)
+    assert el.bridged == 3
+    lines = ["* bridged-T all-pass cascade", "vs src 0 ac 2", f"rs src n0 {r0}"]
+    for k, (w0, q) in enumerate(fit.line.second):
+        la, ca, lb, _ = dsp.lattice_arms(w0, q, r0)
+        c2 = 2 / (r0 * w0 * (q - 1 / q))
+        a, b, m = f"n{k}", f"n{k + 1}", f"m{k}"
+        lines += [f"c{k}a {a} {m} {ca:.12e}", f"c{k}b {m} {b} {ca:.12e}", f"l{k}br {a} {b} {2 * la:.12e}",
+                  f"l{k}sh {m} s{k} {lb / 2:.12e}", f"c{k}sh s{k} 0 {c2:.12e}",
+                  f"r{k}dc s{k} 0 1e12"]  # a DC path for the capacitor-bound nodes, nil at GHz
+    lines += [f"rl n3 0 {r0}", ".control", "ac lin 801 3e9 9e9",
+              f"wrdata {tmp_path / 'ac.txt'} v(n3) v(n0)", "quit", ".endc", ".end"]
+    (tmp_path / "ap.cir").write_text("\n".join(lines) + "\n")
+    subprocess.run(["ngspice", "-b", str(tmp_path / "ap.cir")], cwd=tmp_path, check=True,
+                   capture_output=True, timeout=120)
+    data = np.loadtxt(tmp_path / "ac.txt")
+    f = data[:, 0]
+    h = (data[:, 1] + 1j * data[:, 2]) / (data[:, 4] + 1j * data[:, 5])
+    w = 2 * math.pi * f
+    assert np.allclose(np.abs(h), 1.0, atol=1e-6)  # matched all-pass: |v_out/v_in| = 1
+    tau = dsp.group_delay_of(w, h)[1:-1]
+    want = fit.line.group_delay(w[1:-1])
+    assert np.max(np.abs(tau / want - 1)) < 1e-3
+
+
+def test_placement_holds_the_phase_of_the_band():
+    # each second-order section carries 2π of phase (the area under its group delay), so the
+    # n sections placed for a band hold at least ∫τ dω of the wanted delay τ0 + Φ(ω − ω_c) over
+    # it (standard all-pass result); the count grows with the delay-bandwidth product
+    for gdd, lo, hi in ((1e-21, 15e9, 25e9), (7e-20, 1.4e9, 9.8e9), (-2e-20, 2e9, 6e9)):
+        w0, q, we, target = dsp.allpass_placement(gdd, lo, hi)
+        band = (we >= 2 * math.pi * lo) & (we <= 2 * math.pi * hi)
+        assert 2 * math.pi * w0.size >= np.trapezoid(target[band], we[band])
+        dbp = abs(gdd) * 2 * math.pi * (hi - lo) ** 2
+        assert w0.size >= 0.5 * dbp  # the delay must stay ≥ 0: ∫τ dω ≥ (spread/2)·Δω
+        assert np.all(np.diff(w0) > 0) and np.all(q > 0)
+
+
 def test_allpass_refuses_beyond_max_sections():
     with pytest.raises(ValueError, match="max_sections"):
         dsp.design_allpass(5e-20, 10e9, 60e9, max_sections=10)

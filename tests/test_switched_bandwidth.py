@@ -235,14 +235,20 @@ def test_summer_noise_in_model_and_bill():
     # of the realization with every transconductor's 4kTγ·gm — summers and their loads too —
     # equals kTγ·Σ F_i/C_i, the sum the capacitors were sized with; the summers' share is
     # part of it, and dropping their noise lowers the variance
-    oc = ts.stretch(X, "switched-bandwidth", factor=2.0, noise=True, seed=2)
+    oc = ts.stretch(X, "switched-bandwidth", factor=2.0, noise=True, seed=2, prototype="pade",
+                    noise_target=5e-3)
     d = oc.design
     kT = costs.BOLTZMANN * DEFAULT_TECHNOLOGY.temperature * DEFAULT_TECHNOLOGY.gm_noise_gamma
     c = np.asarray(d.node_capacitance)
     Fi = np.asarray(d.node_noise_factors)
     summer = np.array([r == "summer" for r in d.node_roles])
     assert summer.sum() == len(d.elements["sections"]) and Fi[summer].sum() > 0
-    assert kT * np.sum(Fi / c) == pytest.approx(300e-6 ** 2, rel=1e-6)
+    # the nodes swing the card's linear range (0.2 V for a 1 V pulse): the node-scale target is
+    # 5 mV × 0.2 (this cascade's summers are too fast for the cells' own pole on this card,
+    # own_share > 1, so no node is raised above its noise sizing)
+    v_node = 5e-3 * d.swing / d.signal_peak
+    assert d.swing == DEFAULT_TECHNOLOGY.gm_linear_range and d.own_share > 1
+    assert kT * np.sum(Fi / c) == pytest.approx(v_node ** 2, rel=1e-6)
     sysm = d.system()
     Q = SwitchedBandwidth.__module__ and __import__(
         "timescale_builtins.switched_bandwidth", fromlist=["gm_c_matrices"]).gm_c_matrices(
@@ -253,8 +259,10 @@ def test_summer_noise_in_model_and_bill():
     N = 800
     v_full = lti.output_variance(lti.Schedule.switched(full, 2.0, 1e-9), N, X.dt)[0]
     v_part = lti.output_variance(lti.Schedule.switched(part, 2.0, 1e-9), N, X.dt)[0]
-    assert np.sqrt(v_full[-1]) == pytest.approx(300e-6, rel=0.03)
+    assert np.sqrt(v_full[-1]) == pytest.approx(v_node, rel=0.03)
     assert np.all(v_part < v_full)
+    # and the simulation reads it back at the pulse's scale
+    assert oc.metrics["noise_rms"].value[0] == pytest.approx(5e-3, rel=0.03)
     # the bill counts the summers' transconductors and every gm is C_i·|A_ij|
     names = [i.name for i in oc.bill.items]
     assert "summer transconductors" in names and "integrator transconductors" in names
@@ -272,8 +280,10 @@ def test_cube_trials_metrics_and_seed():
                        ("bandwidth_used", "Hz"), ("filter_order", ""), ("lc_area", "m²")):
         assert name in cube.data_vars and cube[name].attrs["units"] == unit
         assert cube[name].attrs["long_name"]
+    # noise_rms is the nominal filter's (exact covariance), read where each trial peaks; the
+    # sampled noise and the mismatch make the trials differ
     noise = cube["noise_rms"].sel(factor=2.0).values.ravel()
-    assert np.all(np.isfinite(noise)) and np.std(noise) > 0
+    assert np.all(np.isfinite(noise)) and np.all(noise > 0)
     assert np.std(cube["nrmse"].sel(factor=2.0).values) > 0
     again = ts.compare(X, ["switched-bandwidth"], [0.5, 2.0], **kw)
     for name in ("nrmse", "leakage", "noise_rms", "snr_db", "power"):
@@ -284,7 +294,8 @@ def test_node_scaling_keeps_response_and_meets_noise_target():
     # the scaled realization keeps the Padé all-pass H(s) = Π(−s − p)/(s − p) (closed form)
     # and equal node peaks; the exact output noise (Lyapunov/Van Loan, lti.output_variance)
     # equals the default noise target the node capacitance was sized for (kT/C sizing)
-    oc = ts.stretch(X, "switched-bandwidth", factor=2.0, noise=True, seed=3)
+    oc = ts.stretch(X, "switched-bandwidth", factor=2.0, noise=True, seed=3, prototype="pade",
+                    noise_target=5e-3)
     d = oc.design
     sysm = d.system()
     f = np.linspace(1e8, 6e9, 40)
@@ -297,18 +308,18 @@ def test_node_scaling_keeps_response_and_meets_noise_target():
     nodes = lti.simulate(lti.StateSpace(sysm.A, sysm.B, np.eye(n), 0.0), u, X.dt)
     y = lti.simulate(sysm, u, X.dt)[0]
     assert np.allclose(np.max(np.abs(nodes), axis=1), np.max(np.abs(y)), rtol=1e-6)
-    target = SwitchedBandwidth.Params().noise_target
-    assert oc.metrics["noise_rms"].value[0] == pytest.approx(target, rel=0.02)
+    assert oc.metrics["noise_rms"].value[0] == pytest.approx(5e-3, rel=0.02)
     cap = [i for i in oc.bill.items if i.name == "node capacitors"][0]
-    assert cap.count == n and cap.area == pytest.approx(sum(d.node_capacitance) / DEFAULT_TECHNOLOGY.cap_density)
+    drawn = np.maximum(np.asarray(d.node_capacitance) - np.asarray(d.node_own_capacitance), 0)
+    assert cap.count == n and cap.area == pytest.approx(drawn.sum() / DEFAULT_TECHNOLOGY.cap_density)
 
 
 def test_unreachable_leakage_target_gives_the_least_leaky_design_with_a_warning():
     # a comparison keeps the cell: the design tried with the least leakage is delivered and the
     # leakage metric shows the shortfall (a target of 1e-12 is below what any finite delay of
-    # an all-pass with feed-through reaches)
+    # an all-pass with feed-through reaches; a ladder line, a low-pass, has no feed-through)
     x = ts.Pulse.gaussian(sigma=100e-12, center=0.6e-9, duration=3e-9, rate=40e9)
     with pytest.warns(ts.DesignWarning, match="leakage at the switch instant"):
-        out = ts.stretch(x, "switched-bandwidth", 2.0, leakage_target=1e-12)
+        out = ts.stretch(x, "switched-bandwidth", 2.0, leakage_target=1e-12, prototype="pade")
     assert out.metrics["leakage"].value > 1e-12
     assert any("brought the leakage below" in n for n in out.design.notes)

@@ -21,7 +21,7 @@ import numpy as np
 from timescale.numerics.lti import StateSpace
 
 __all__ = ["Prototype", "bessel", "pade", "ladder", "build", "pade_group_delay", "summed_cascade",
-           "summer_response"]
+           "summer_response", "delay_error"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -62,6 +62,13 @@ class Prototype:
             return np.prod((-s[:, None] - p[None, :]) / (s[:, None] - p[None, :]), axis=1)
         e = self.elements
         return _ladder_response(s, e["sections"], e["L"], e["C"], e["Z0"], e["termination"])
+
+
+def delay_error(H, f, delay: float, P) -> float:
+    """NRMSE of a response H(f) against the pure delay e^{−j2πf·delay}, weighted by the input's
+    energy spectrum P(f) (Parseval: the time-domain NRMSE of the unswitched output)."""
+    err = np.abs(np.asarray(H) - np.exp(-2j * np.pi * np.asarray(f) * delay)) ** 2
+    return float(math.sqrt(np.sum(P * err) / np.sum(P)))
 
 
 def _cascade(sections):

@@ -77,15 +77,19 @@ def stretch(pulse: Pulse, method, factor: float, *, trials: int = 1, seed=None,
                     technology or DEFAULT_TECHNOLOGY, rng, check_trials(trials), reissue=True)
 
 
-def run_method(m: Method, pulse, factor, params, technology, rng, trials, reissue=False) -> Outcome:
+def run_method(m: Method, pulse, factor, params, technology, rng, trials, reissue=False, *,
+               evaluated_on: Technology | None = None) -> Outcome:
     """Design, simulate, bill and check the process limits; timescale warnings are kept on the
-    outcome (and shown to the caller too when `reissue`)."""
+    outcome (and shown to the caller too when `reissue`). The design is sized on `technology`
+    and simulated, billed and checked on `evaluated_on` (default: the same card), e.g. a
+    process corner or another temperature."""
+    card = technology if evaluated_on is None else evaluated_on
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", TimescaleWarning)
         design = m.design(pulse, factor, params, technology)
-        sim = m.simulate(pulse, design, params, rng, trials, technology)
-        bill = m.bill(design, params, technology)
-        limits = tuple(m.limits(design, params, technology))
+        sim = m.simulate(pulse, design, params, rng, trials, card)
+        bill = m.bill(design, params, card)
+        limits = tuple(m.limits(design, params, card))
     for lim in limits:
         if not isinstance(lim, Limit):
             raise TypeError(f"method {m.name!r}: limits() must return timescale.plugin.Limit records, "

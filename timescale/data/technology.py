@@ -46,6 +46,9 @@ class Technology:
     gm_over_id: float = _f("S/A", "transconductor efficiency gm/I_D at the chosen bias")
     gm_intrinsic_gain: float = _f("", "transconductor gm·r_o (finite output conductance)")
     gm_noise_gamma: float = _f("", "excess noise factor γ in 4kTγ·gm")
+    gm_linear_range: float = _f("V", "peak differential input a transconductor handles at the "
+                                "distortion a 40 dB signal-to-noise target allows (sets a gm-C "
+                                "filter's internal signal swing)")
     gm_cell_area: float = _f("m²", "area of one transconductor cell")
     gm_max: float = _f("S", "largest practical transconductance of one cell")
     inductor_track_width: float = _f("m", "spiral inductor track width")
@@ -237,6 +240,7 @@ PRESETS: dict[str, Technology] = {
         gm_over_id=12.0,
         gm_intrinsic_gain=30.0,
         gm_noise_gamma=1.0,
+        gm_linear_range=0.2,  # 0.4 V peak-to-peak differential at a 1.2 V supply
         gm_cell_area=400e-12,  # 400 µm²
         gm_max=50e-3,
         inductor_track_width=8e-6,
@@ -287,6 +291,7 @@ PRESETS["example-fast"] = dataclasses.replace(
     cap_density=4.0e-3,
     gm_over_id=15.0,
     gm_intrinsic_gain=15.0,
+    gm_linear_range=0.15,  # lower supply, less headroom
     gm_cell_area=150e-12,
     gm_max=100e-3,
     inductor_track_width=6e-6,
@@ -311,6 +316,7 @@ PRESETS["example-coarse"] = dataclasses.replace(
     cap_density=1.0e-3,
     gm_over_id=8.0,
     gm_intrinsic_gain=60.0,
+    gm_linear_range=0.5,  # 3.3 V supply
     gm_cell_area=1500e-12,
     gm_max=20e-3,
     inductor_track_width=10e-6,
@@ -343,6 +349,9 @@ PRESETS["example-cmos130"] = dataclasses.replace(
     gm_over_id=12.0,  # moderate inversion
     gm_intrinsic_gain=20.0,
     gm_noise_gamma=1.0,
+    # a 3rd-order 120 nm gm-C low-pass reaches HD3 = -49 dB at 400 mV peak-to-peak
+    # (published; see docs/theory/switched-bandwidth.md): 0.2 V peak differential
+    gm_linear_range=0.2,
     gm_cell_area=1500e-12,
     gm_max=20e-3,
     inductor_track_width=8e-6,

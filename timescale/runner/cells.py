@@ -53,6 +53,10 @@ class CellSpec:
         RMS jitter for the jitter-SNR metrics, s.
     keep_waveform : bool
         Return the output waveform with the row.
+    corner : str, optional
+        Process corner to evaluate the design at (see :meth:`CellSpec.cards`).
+    temperature : float, optional
+        Operating temperature to evaluate the design at, K.
     """
 
     index: int
@@ -66,6 +70,22 @@ class CellSpec:
     technology: Technology = DEFAULT_TECHNOLOGY
     sampler_jitter: float = DEFAULT_SAMPLER_JITTER
     keep_waveform: bool = False
+    corner: str | None = None
+    temperature: float | None = None
+
+    def cards(self) -> tuple[Technology, Technology]:
+        """(card to size on, card to simulate, bill and check limits on).
+
+        Both are `technology` unless a corner or temperature is given: then the design is sized
+        on the typical card at its nominal temperature and evaluated on the card at that corner
+        and temperature (the card's own where one of the two is not given).
+        """
+        t = self.technology
+        if self.corner is None and self.temperature is None:
+            return t, t
+        evaluated = t.at_corner(t.corner if self.corner is None else self.corner,
+                                t.temperature if self.temperature is None else self.temperature)
+        return t.at_corner("typical", t.temperature_nominal), evaluated
 
 
 @dataclass
@@ -103,8 +123,9 @@ def run_cell(spec: CellSpec) -> Row:
     try:
         m = get_method(spec.method)
         params = m.make_params(**dict(spec.params))
-        oc = run_method(m, spec.pulse, spec.factor, params, spec.technology,
-                      cell_rng(spec.entropy, spec.index), spec.trials)
+        sized_on, evaluated_on = spec.cards()
+        oc = run_method(m, spec.pulse, spec.factor, params, sized_on,
+                        cell_rng(spec.entropy, spec.index), spec.trials, evaluated_on=evaluated_on)
         if not np.all(np.isfinite(oc.pulse.values)):
             raise FloatingPointError("the method returned non-finite output samples")
         values, attrs = measure(oc, spec.sampler_jitter)
@@ -143,6 +164,7 @@ def measure(oc: Outcome, sampler_jitter: float = DEFAULT_SAMPLER_JITTER):
     fit = metrics.fit_reference(y, x, a, oc.orientation)
     v: dict[str, Any] = {
         "nrmse": fit.nrmse,
+        "nrmse_fixed": metrics.nrmse_fixed(y, x, a, oc.orientation),
         "correlation": fit.correlation,
         "sndr_db": fit.sndr_db,
         "latency": fit.latency,

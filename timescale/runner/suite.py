@@ -24,6 +24,8 @@ Suite file form (every key optional except ``pulses``)::
     [sweep]                                # each key adds a cube dimension
     bits = [6, 8, 10, 12]
     jitter = {start = 0.1e-12, stop = 10e-12, num = 5, scale = "log"}
+    corner = ["typical", "slow", "fast"]   # process corners of the card (every method)
+    temperature = [233.15, 300.0, 358.15]  # operating temperature, K, within the card's range
 
     [[pulses]]                             # a shape constructor of timescale.Pulse
     shape = "gaussian"
@@ -36,6 +38,12 @@ Suite file form (every key optional except ``pulses``)::
     [[pulses]]                             # or samples from a CSV file (time s, value)
     csv = "echo.csv"                       # relative to the suite file
     name = "echo"
+
+``corner`` and ``temperature`` are not method parameters: they are the card's process corner and
+operating temperature. With either swept, every cell is sized on the typical card at its nominal
+temperature (``technology.at_corner("typical", temperature_nominal)``) and simulated, billed and
+checked against its limits on the card at that corner and temperature
+(:meth:`~timescale.Technology.at_corner`), so the cube shows the spread of one design.
 
 A range table is ``{start, stop, num, scale}`` with ``scale = "linear"`` (default, numpy
 ``linspace``) or ``"log"`` (``geomspace``); both ends are included.
@@ -68,7 +76,7 @@ from timescale.data.errors import closest
 from timescale.data.pulse import Pulse
 from timescale.data.technology import DEFAULT_TECHNOLOGY, PRESETS, Technology
 
-__all__ = ["Suite", "Plan", "expand_range", "fill_not_applicable", "PULSE_SHAPES", "KEEP"]
+__all__ = ["Suite", "Plan", "expand_range", "fill_not_applicable", "PULSE_SHAPES", "KEEP", "CARD_DIMS"]
 
 #: Pulse shapes a suite may name, mapped to the Pulse constructor.
 PULSE_SHAPES = {
@@ -89,6 +97,9 @@ _TOP_KEYS = ("name", "description", "pulses", "methods", "factors", "params", "s
              "seed", "technology", "keep", "timeout", "sampler_jitter")
 _CSV_KEYS = ("csv", "name", "time_column", "value_column", "units")
 _RANGE_KEYS = ("start", "stop", "num", "scale")
+#: Sweep keys that set the card a cell is evaluated on, not a method parameter: (units, long name).
+CARD_DIMS = {"corner": ("", "process corner the design is evaluated at"),
+             "temperature": ("K", "operating temperature the design is evaluated at")}
 
 
 def _where(path: str, key) -> str:
@@ -306,6 +317,8 @@ class Suite:
         parameter; ``method name -> {name: value}`` to that method only.
     sweep : Mapping, optional
         ``parameter -> list or range table``; each adds a cube dimension (in this order).
+        ``corner`` (names) and ``temperature`` (K) sweep the card instead: every cell is sized
+        on the typical card at its nominal temperature and evaluated at the corner.
     trials : int
         Monte Carlo trials per cell (a ``trial`` dimension when > 1).
     seed : int, optional
@@ -533,6 +546,18 @@ class Suite:
         sweep_axes = []
         applies: dict[str, tuple[str, ...]] = {}
         for k, vals in self.sweep.items():
+            if k in CARD_DIMS:  # the card's corner or temperature: applies to every method
+                for i, v in enumerate(vals):
+                    try:
+                        if k == "corner":
+                            self.technology.at_corner(v)
+                        else:
+                            self.technology.at_corner("typical", v)
+                    except (TypeError, ValueError) as exc:
+                        raise ValueError(f"sweep.{k}[{i}] = {v!r} is not valid: {exc}") from None
+                sweep_axes.append((k, vals) + CARD_DIMS[k])
+                applies[k] = tuple(mnames)
+                continue
             owners = [m for m in mlist if k in m.param_fields()]
             if not owners:
                 raise _unknown("sweep", k, sorted({f for m in mlist for f in m.param_fields()}))
@@ -631,8 +656,11 @@ class Plan:
         m = self.methods[pos[0]]
         params = dict(self.params[m])
         skipped = []
+        card = {}
         for d, (name, vals, _, _) in enumerate(self.sweep):
-            if m in self.applies[name]:
+            if name in CARD_DIMS:
+                card[name] = vals[pos[3 + d]]
+            elif m in self.applies[name]:
                 params[name] = vals[pos[3 + d]]
             elif pos[3 + d] != 0:
                 skipped.append(f"{name}={vals[0]!r}")
@@ -644,7 +672,8 @@ class Plan:
         obj = self.method_objects.get(m)
         return CellSpec(int(index), obj if obj is not None else m, params, pname, self.pulses[pname],
                         self.factors[pos[2]], self.trials, entropy, self.technology,
-                        self.sampler_jitter, self.keep_waveform)
+                        self.sampler_jitter, self.keep_waveform, card.get("corner"),
+                        card.get("temperature"))
 
 
 def fill_not_applicable(ds):

@@ -34,7 +34,8 @@ absolute angular frequencies ω ≥ 0 in rad/s):
   :func:`fit_gdd` fits Φ to its group delay.
 
 Modules: ``waves`` (Wave, chirp/GDD conversions, path choice), ``lines`` (analytic line models,
-all-pass design), ``measured`` (sampled and Touchstone lines, causality, GDD fit),
+all-pass placement and design), ``networks`` (element values of all-pass sections: lattice and
+bridged-T), ``measured`` (sampled and Touchstone lines, causality, GDD fit),
 ``operators`` (applying lines, dispersion, the time lens, the stretch penalty), ``detectors``
 (envelope detection). Imports only numpy, scipy, :mod:`timescale.data` and
 :mod:`timescale.data.signal`.
@@ -48,9 +49,11 @@ from timescale.numerics.dispersion.lines import (
                     QuadraticLine,
                     allpass1_delay,
                     allpass2_delay,
+                    allpass_placement,
                     allpass_section_count,
                     design_allpass,
 )
+from timescale.numerics.dispersion.networks import AllpassElements, allpass_elements, lattice_arms
 from timescale.numerics.dispersion.measured import (
                     Causality,
                     SampledLine,
@@ -93,6 +96,10 @@ __all__ = [
     "allpass1_delay",
     "allpass2_delay",
     "allpass_section_count",
+    "allpass_placement",
+    "AllpassElements",
+    "allpass_elements",
+    "lattice_arms",
     "design_allpass",
     "fit_gdd",
     "read_touchstone",

@@ -301,6 +301,67 @@ def allpass_section_count(gdd: float, f_lo: float, f_hi: float, fill: float = 1.
     return max(3, int(math.ceil(tau_mid * dw / (2.0 * math.pi * fill))))
 
 
+def _checked_band(gdd, f_lo, f_hi, sections):
+    """(Φ, f_lo, f_hi, sections) checked; the count defaults to :func:`allpass_section_count`."""
+    phi = _checks.finite("gdd", gdd)
+    f_lo = _checks.positive("f_lo", f_lo)
+    f_hi = _checks.positive("f_hi", f_hi)
+    if f_hi <= f_lo:
+        raise ValueError(f"f_hi ({f_hi} Hz) must exceed f_lo ({f_lo} Hz)")
+    n = allpass_section_count(phi, f_lo, f_hi) if sections is None else int(sections)
+    if n < 1:
+        raise ValueError(f"sections must be >= 1, got {sections!r}")
+    return phi, f_lo, f_hi, n
+
+
+def allpass_placement(gdd: float, f_lo: float, f_hi: float, sections: int | None = None):
+    """Starting placement of second-order sections for a linear group delay over a band.
+
+    Each second-order section carries 2π of phase (the area under its group delay), so the
+    sections sit where the wanted cumulative phase ∫τ dω crosses odd multiples of π, over the
+    band plus half a section spacing beyond each edge (edge sections straddle the edges); the
+    delay τ0 + Φ(ω − ω_c) is scaled so the n sections hold it. Each Q follows the local spacing
+    Δω so that neighbouring delay peaks (width ω0/Q) overlap: Q = ω0/(1.2·Δω).
+
+    Parameters
+    ----------
+    gdd : float
+        Φ, s² (either sign).
+    f_lo, f_hi : float
+        Band, Hz (0 < f_lo < f_hi).
+    sections : int, optional
+        Number of sections (default :func:`allpass_section_count`).
+
+    Returns
+    -------
+    omega0, q : ndarray
+        Centre frequencies (rad/s) and quality factors of the sections.
+    we, target : ndarray
+        The extended band (rad/s) and the delay (s) the placement followed.
+    """
+    phi, f_lo, f_hi, n = _checked_band(gdd, f_lo, f_hi, sections)
+    w_lo, w_hi = 2 * math.pi * f_lo, 2 * math.pi * f_hi
+    wc = 0.5 * (w_lo + w_hi)
+    dw = w_hi - w_lo
+    size = max(64, 4 * n)
+    # wanted delay: τ0 chosen so that the band plus half a section spacing beyond each edge
+    # holds the n·2π of phase the sections carry (edge sections straddle the band edges)
+    tau0 = 2 * math.pi * n / dw
+    for _ in range(3):
+        pad = 0.5 * 2 * math.pi / tau0
+        we = np.linspace(w_lo - pad, w_hi + pad, size)
+        target = tau0 + phi * (we - wc)
+        target = np.maximum(target, 0.1 * tau0)
+        tau0 = tau0 * 2 * math.pi * n / np.trapezoid(target, we)
+    target = np.maximum(tau0 + phi * (we - wc), 0.1 * tau0)
+    cum = np.concatenate([[0.0], np.cumsum(0.5 * (target[1:] + target[:-1]) * np.diff(we))])
+    marks = (np.arange(n) + 0.5) / n * cum[-1]
+    w0 = np.interp(marks, cum, we)
+    spacing = np.gradient(w0) if n > 1 else np.array([dw])
+    q0 = np.clip(w0 / (1.2 * np.abs(spacing)), 0.3, 1e4)
+    return w0, q0, we, target
+
+
 def design_allpass(gdd: float, f_lo: float, f_hi: float, *, sections: int | None = None,
                    max_sections: int = 400, q_unloaded: float | None = None,
                    points_per_section: int = 4, ripple_target: float = 1e-3,
@@ -338,14 +399,7 @@ def design_allpass(gdd: float, f_lo: float, f_hi: float, *, sections: int | None
     ValueError
         When the band is invalid or more than `max_sections` sections are needed.
     """
-    phi = _checks.finite("gdd", gdd)
-    f_lo = _checks.positive("f_lo", f_lo)
-    f_hi = _checks.positive("f_hi", f_hi)
-    if f_hi <= f_lo:
-        raise ValueError(f"f_hi ({f_hi} Hz) must exceed f_lo ({f_lo} Hz)")
-    n = allpass_section_count(phi, f_lo, f_hi) if sections is None else int(sections)
-    if n < 1:
-        raise ValueError(f"sections must be >= 1, got {sections!r}")
+    phi, f_lo, f_hi, n = _checked_band(gdd, f_lo, f_hi, sections)
     if n > max_sections:
         raise ValueError(
             f"a linear group delay of {phi:.4g} s² over {f_lo:.4g}-{f_hi:.4g} Hz needs about {n} "
@@ -355,21 +409,7 @@ def design_allpass(gdd: float, f_lo: float, f_hi: float, *, sections: int | None
     wc = 0.5 * (w_lo + w_hi)
     dw = w_hi - w_lo
     w = np.linspace(w_lo, w_hi, max(64, points_per_section * n))
-    # wanted delay: τ0 chosen so that the band plus half a section spacing beyond each edge
-    # holds the n·2π of phase the sections carry (edge sections straddle the band edges)
-    tau0 = 2 * math.pi * n / dw
-    for _ in range(3):
-        pad = 0.5 * 2 * math.pi / tau0
-        we = np.linspace(w_lo - pad, w_hi + pad, w.size)
-        target = tau0 + phi * (we - wc)
-        target = np.maximum(target, 0.1 * tau0)
-        tau0 = tau0 * 2 * math.pi * n / np.trapezoid(target, we)
-    target = np.maximum(tau0 + phi * (we - wc), 0.1 * tau0)
-    cum = np.concatenate([[0.0], np.cumsum(0.5 * (target[1:] + target[:-1]) * np.diff(we))])
-    marks = (np.arange(n) + 0.5) / n * cum[-1]
-    w0 = np.interp(marks, cum, we)
-    spacing = np.gradient(w0) if n > 1 else np.array([dw])
-    q0 = np.clip(w0 / (1.2 * np.abs(spacing)), 0.3, 1e4)
+    w0, q0, _, _ = allpass_placement(phi, f_lo, f_hi, n)
     ref = wc  # fit in units of the band centre for conditioning
 
     def delays(x):
