@@ -26,7 +26,6 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.fft as sfft
-from scipy import signal as ss
 
 from timescale.data.signal import derivative, resample_to
 from timescale.numerics import costs
@@ -345,6 +344,8 @@ def _zoh_replay(codes: np.ndarray, f_r: float, params: ResampleParams):
     tail = int(math.ceil(20.0 / (2 * math.pi * fc) * rate))
     nfft = sfft.next_fast_len(stair.shape[-1] + tail)
     f = sfft.rfftfreq(nfft, 1.0 / rate)
+    from scipy import signal as ss  # imported here: scipy.signal is slow to import
+
     b, a_ = ss.butter(params.filter_order, 2 * math.pi * fc, analog=True)
     _, h = ss.freqs(b, a_, worN=2 * math.pi * f)
     return sfft.irfft(sfft.rfft(stair, n=nfft, axis=-1) * h, n=nfft, axis=-1), rate

@@ -247,3 +247,72 @@ def test_bad_input():
         lti.stationary_covariance(np.array([[1.0]]), np.array([[1.0]]))
     with pytest.raises(ValueError, match="shape"):
         lti.StateSpace(np.ones((2, 3)), [1, 1], [1, 1])
+
+
+def test_trials_in_chunks_equal_one_batch_and_bound_memory(monkeypatch):
+    # chunking is bookkeeping: the same per-trial results (to rounding) as one batch, with the
+    # traced peak of the work arrays held near the output (the target: about 2×)
+    import tracemalloc
+
+    from timescale.numerics.lti import kernel
+
+    rng = np.random.default_rng(7)
+    n, K, N, dt = 6, 300, 2000, 5e-12
+    A = -np.eye(n) * 2e9 + np.diag(np.full(n - 1, 1.5e9), -1)
+    As = A[None] * (1 + 0.02 * rng.standard_normal((K, n, n)) * (A != 0))
+    sch = lti.Schedule.switched(lti.StateSpace(As, np.r_[2e9, np.zeros(n - 1)], np.eye(n)[-1]), 2.0,
+                                3e-9 + 1e-12 * rng.standard_normal(K))
+    u = np.exp(-0.5 * ((np.arange(N) * dt - 1e-9) / 100e-12) ** 2)
+    monkeypatch.setattr(kernel, "_CHUNK_BYTES", 2 ** 40)
+    whole = lti.simulate(sch, u, dt)
+    monkeypatch.setattr(kernel, "_CHUNK_BYTES", 2 ** 20)
+    assert kernel._chunk(N, n, None) < K  # several chunks
+    tracemalloc.start()
+    chunked = lti.simulate(sch, u, dt)
+    peak = tracemalloc.get_traced_memory()[1]
+    tracemalloc.stop()
+    np.testing.assert_allclose(chunked, whole, rtol=0, atol=1e-13 * np.max(np.abs(whole)))
+    assert peak < 2.5 * chunked.nbytes
+
+
+def test_equal_systems_given_as_distinct_objects_share_one_discretization():
+    # a periodic schedule written out system by system: the planner must see two systems, not 41
+    from timescale.numerics.lti.planning import _unique
+
+    A = np.array([[-2e9, 0.0], [1e9, -1e9]])
+    fast = [lti.StateSpace(A, [2e9, 0.0], [0.0, 1.0]) for _ in range(21)]
+    slow = [lti.StateSpace(A / 2, [1e9, 0.0], [0.0, 1.0]) for _ in range(20)]
+    systems = [s for pair in zip(fast, slow) for s in pair] + [fast[-1]]
+    uniq, umap = _unique(lti.Schedule(tuple(systems), np.arange(1, 41) * 1e-9))
+    assert len(uniq) == 2
+    np.testing.assert_array_equal(umap, np.arange(41) % 2)
+    # a system that differs in one bit of one entry stays apart
+    odd = lti.StateSpace(np.nextafter(A, 0), [2e9, 0.0], [0.0, 1.0])
+    uniq, umap = _unique(lti.Schedule((fast[0], odd, fast[1]), [1e-9, 2e-9]))
+    assert len(uniq) == 2 and umap.tolist() == [0, 1, 0]
+
+
+def test_steps_sharing_one_block_equal_separate_van_loan_exponentials():
+    # every step of a switched schedule is expm(h·M0) of one block (the scaled system's too);
+    # checked against scipy.linalg.expm of the Van Loan block, one matrix at a time
+    from timescale.numerics.lti.discretize import FohFamily
+
+    rng = np.random.default_rng(3)
+    n, K = 6, 4
+    A = -3e10 * np.eye(n) + 8e9 * rng.standard_normal((K, n, n))
+    B = 1e10 * rng.standard_normal((K, n))
+    fam = FohFamily(A, B, 2.5e-12)
+
+    def van_loan(a, b, h):
+        M = np.zeros((n + 2, n + 2))
+        M[:n, :n], M[:n, n], M[n, n + 1] = a * h, b * h, 1.0
+        E = sla.expm(M)
+        return E[:n, :n], E[:n, n] - E[:n, n + 1], E[:n, n + 1]
+
+    for h, scale in ((2.5e-12, 1.0), (np.array([0.0, 1e-13, 2e-12, 4e-11]), 1.0), (2.5e-12, 0.5)):
+        got = fam.step(np.asarray(h) * scale)
+        hs = np.broadcast_to(h, (K,))
+        for k in range(K):
+            want = van_loan(A[k] * scale, B[k] * scale, hs[k])
+            for g, w in zip(got, want):
+                np.testing.assert_allclose(g[k], w, rtol=0, atol=1e-13 * max(1.0, np.max(np.abs(w))))

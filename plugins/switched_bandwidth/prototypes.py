@@ -17,7 +17,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import signal as ss
 
 from timescale.numerics.lti import StateSpace
 
@@ -116,6 +115,8 @@ def _sections_from_poles(poles, allpass: bool):
 @functools.lru_cache(maxsize=128)
 def _unit_bessel_poles(order: int) -> np.ndarray:
     """Poles of the unit-DC-delay Bessel–Thomson filter (scipy, norm='delay')."""
+    from scipy import signal as ss  # imported here: scipy.signal is slow to import
+
     _, p, _ = ss.bessel(order, 1.0, analog=True, norm="delay", output="zpk")
     p = np.asarray(p)
     p.setflags(write=False)
@@ -158,6 +159,8 @@ def pade(order: int, delay: float) -> Prototype:
 def pade_group_delay(order: int, delay: float, w) -> np.ndarray:
     """Group delay (s) of the Padé all-pass at angular frequencies `w` (rad/s): the sum over
     poles p of 2·(−Re p)/((ω − Im p)² + Re p²)."""
+    from scipy import signal as ss  # imported here: scipy.signal is slow to import
+
     _, p, _ = ss.bessel(order, 1.0, analog=True, norm="delay", output="zpk")
     p = 2.0 * np.asarray(p) / delay
     w = np.asarray(w, dtype=float)[..., None]

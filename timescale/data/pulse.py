@@ -371,12 +371,25 @@ class Pulse:
         n = self.n if n_fft is None else int(n_fft)
         return sfft.rfftfreq(n, self.dt), sfft.rfft(self.values, n=n, axis=-1) * self.dt
 
-    def _power_spectrum(self):
+    def _spectrum_freqs(self):
         # zero-pad ×4 so that narrow-band measurements are resolved
-        f, X = self.spectrum(sfft.next_fast_len(4 * self.n))
-        p = np.abs(X) ** 2
+        return sfft.rfftfreq(sfft.next_fast_len(4 * self.n), self.dt)
+
+    def _power_of(self, values):
+        X = sfft.rfft(values, n=sfft.next_fast_len(4 * self.n), axis=-1) * self.dt
+        p = X.real ** 2 + X.imag ** 2
         p[..., 1:] *= 2.0  # one-sided: fold the negative frequencies in
-        return f, p
+        return p
+
+    def _per_chunk(self, fn, lead=0, rows=256):
+        """fn applied to the records in chunks of `rows` (the ×4 padded spectra of a large batch
+        would otherwise be several times the batch itself); results have the batch shape, after
+        `lead` leading entries when given."""
+        v = self.values.reshape(-1, self.n)
+        parts = [fn(v[i:i + rows]) for i in range(0, v.shape[0], rows)]
+        out = np.concatenate(parts, axis=-1)
+        shape = ((lead,) if lead else ()) + self.batch_shape
+        return out.reshape(shape)
 
     def rms_bandwidth(self) -> np.ndarray | float:
         """Gabor RMS bandwidth √(∫f²|X|²df / ∫|X|²df) over the two-sided spectrum, Hz.
@@ -384,8 +397,11 @@ class Pulse:
         For a real signal the two-sided mean frequency is zero; for a Gaussian,
         rms_width·rms_bandwidth = 1/(4π) (Gabor 1946).
         """
-        f, p = self._power_spectrum()
-        return _scalar(np.sqrt(np.sum(p * f * f, axis=-1) / _nonzero(np.sum(p, axis=-1))))
+        def rms(p):
+            return np.sqrt(np.sum(p * f * f, axis=-1) / _nonzero(np.sum(p, axis=-1)))
+
+        f = self._spectrum_freqs()
+        return _scalar(self._per_chunk(lambda v: rms(self._power_of(v))))
 
     def occupied_bandwidth(self, fraction=0.99) -> np.ndarray | float:
         """Occupied bandwidth: the frequency f_b such that the two-sided band [−f_b, f_b] holds
@@ -405,12 +421,16 @@ class Pulse:
 
     def _energy_quantiles(self, *qs):
         """Frequencies (Hz) below which the fractions `qs` of the one-sided energy lie."""
-        f, p = self._power_spectrum()
-        cum = np.cumsum(p, axis=-1)
-        cum = cum / _nonzero(cum[..., -1:])
-        return tuple(
-            _scalar(_interp_edge(f, cum, np.apply_along_axis(lambda c: np.searchsorted(c, q), -1, cum), q))
-            for q in qs)
+        f = self._spectrum_freqs()
+
+        def quantiles(v):
+            cum = np.cumsum(self._power_of(v), axis=-1)
+            cum = cum / _nonzero(cum[..., -1:])
+            # first index with cum >= q (cum is nondecreasing): the count of entries below q
+            return np.stack([_interp_edge(f, cum, np.sum(cum < q, axis=-1), q) for q in qs])
+
+        out = self._per_chunk(quantiles, len(qs))
+        return tuple(_scalar(o) for o in out)
 
     def fwhm(self) -> np.ndarray | float:
         """Full width at half maximum of |x| around its highest peak (linear interpolation of the

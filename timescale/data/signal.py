@@ -4,18 +4,81 @@ One home for: exact band-limited resampling onto any uniform grid, and the conti
 transform of a sampled pulse at arbitrary, equally spaced frequencies (both use the chirp-z
 transform, so the cost is O((n + m) log(n + m)) for any rate ratio); the spectral derivative;
 and the analytic signal used by envelope detectors and single-sideband mixers.
+
+The chirp-z transform is our own (Bluestein's algorithm, as in ``scipy.signal.czt``) so that its
+plans are cached across calls, trials and cells, and so that a batch may use a different
+frequency spacing per record (:func:`chirp_z` with array arguments); scipy.signal is imported
+only by :func:`analytic`, which keeps start-up light.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import replace
+from functools import lru_cache
 
 import numpy as np
 import scipy.fft as sfft
-from scipy import signal as ss
 
-__all__ = ["resample_to", "fourier_at", "derivative", "analytic"]
+__all__ = ["resample_to", "fourier_at", "chirp_z", "derivative", "analytic"]
+
+
+def _chirp_parts(n: int, m: int, theta, phi):
+    """Bluestein factors of :func:`chirp_z`: (pre (..., n), kernel spectrum (..., L), post (..., m), L).
+
+    n·k = (n² + k² − (k − n)²)/2 turns the sum into a convolution with the chirp e^{jθ j²/2}."""
+    L = sfft.next_fast_len(n + m - 1)
+    th = np.asarray(theta, dtype=float)[..., None]
+    ph = np.asarray(phi, dtype=float)[..., None]
+    i = np.arange(max(n, m), dtype=float)
+    half = 0.5 * i * i
+    pre = np.exp(-1j * (ph * i[:n] + th * half[:n]))
+    post = np.exp(-1j * th * half[:m])
+    lag = np.concatenate([np.arange(n - 1, 0, -1), np.arange(m)]).astype(float)
+    kern = sfft.fft(np.exp(0.5j * th * lag * lag), L, axis=-1)
+    return pre, kern, post, L
+
+
+@lru_cache(maxsize=128)
+def _chirp_plan(n: int, m: int, theta: float, phi: float):
+    """Cached :func:`_chirp_parts` for one spacing (the plans repeat across trials and cells)."""
+    parts = _chirp_parts(n, m, theta, phi)
+    for a in parts[:3]:
+        a.setflags(write=False)
+    return parts
+
+
+def chirp_z(values, m: int, theta, phi=0.0) -> np.ndarray:
+    """``X_k = Σ_n x_n e^{−j n (φ + θ k)}`` for k < m (the DTFT at ω = φ + θk rad/sample), along
+    the last axis, by Bluestein's algorithm in O((n + m) log(n + m)).
+
+    Parameters
+    ----------
+    values : array_like, shape (..., n)
+        Samples (real or complex).
+    m : int
+        Number of output points.
+    theta, phi : float or ndarray
+        Spacing and start of the angular frequencies, rad/sample. Scalars use a cached plan;
+        arrays broadcast against the leading axes of `values` (one spacing per record).
+
+    Returns
+    -------
+    ndarray, shape (..., m), complex
+    """
+    v = np.asarray(values)
+    n = v.shape[-1]
+    m = int(m)
+    if np.ndim(theta) == 0 and np.ndim(phi) == 0:
+        pre, kern, post, L = _chirp_plan(n, m, float(theta), float(phi))
+    else:
+        pre, kern, post, L = _chirp_parts(n, m, theta, phi)
+    buf = np.zeros(np.broadcast_shapes(v.shape, pre.shape)[:-1] + (L,), dtype=complex)
+    np.multiply(v, pre, out=buf[..., :n])  # zero-padded in place (no padding copy in the FFT)
+    buf = sfft.fft(buf, axis=-1, overwrite_x=True)
+    buf *= kern
+    out = sfft.ifft(buf, axis=-1, overwrite_x=True)
+    return out[..., n - 1:n - 1 + m] * post
 
 
 def _trig_coefficients(values: np.ndarray):
@@ -36,7 +99,7 @@ def _trig_coefficients(values: np.ndarray):
     return c, k0
 
 
-def resample_to(pulse, rate: float, *, t_start: float | None = None, n: int | None = None):
+def resample_to(pulse, rate: float, *, t_start=None, n: int | None = None):
     """Band-limited resampling of `pulse` onto the grid ``t_start + m / rate``, m < n.
 
     The record is treated as one period of a periodic, band-limited signal (its trigonometric
@@ -50,8 +113,10 @@ def resample_to(pulse, rate: float, *, t_start: float | None = None, n: int | No
         Input.
     rate : float
         New sample rate, Hz.
-    t_start : float, optional
-        Time of the first new sample, s (default: the pulse's t0).
+    t_start : float or ndarray of shape (K,), optional
+        Time of the first new sample, s (default: the pulse's t0). An array (one-record `pulse`
+        only, `n` given) gives K records sharing one interpolant, record k starting at
+        t_start[k]; the returned pulse's t0 is t_start[0] (its records are shifted copies).
     n : int, optional
         Number of new samples (default: enough to span the original record).
 
@@ -59,7 +124,16 @@ def resample_to(pulse, rate: float, *, t_start: float | None = None, n: int | No
     -------
     Pulse
     """
-    t_start = pulse.t0 if t_start is None else float(t_start)
+    many = t_start is not None and np.ndim(t_start) > 0
+    if many:
+        if pulse.values.ndim != 1:
+            raise ValueError(f"t_start as an array (one start per record) needs a one-record pulse, got "
+                             f"values of shape {pulse.values.shape}")
+        t_start = np.asarray(t_start, dtype=float)
+        if n is None:
+            raise ValueError("t_start as an array (one start per record) needs n, the samples per record; got n=None")
+    else:
+        t_start = pulse.t0 if t_start is None else float(t_start)
     if n is None:
         n = max(2, int(math.floor((pulse.t_end - t_start) * rate + 1e-9)))
     values = pulse.values
@@ -69,15 +143,17 @@ def resample_to(pulse, rate: float, *, t_start: float | None = None, n: int | No
     c, k0 = _trig_coefficients(values)
     # x(τ) = Σ_k c_k e^{j2πkτ/T} with τ = t − t0 measured from the first original sample
     tau0 = t_start - pulse.t0
+    if many:
+        tau0 = tau0[:, None]
     step = 1.0 / rate
-    w = np.exp(2j * np.pi * step / period)
     # Σ_{i} c_i e^{j2π(i−k0)(τ0 + m·step)/T}
     i = np.arange(c.shape[-1])
     pre = c * np.exp(2j * np.pi * i * tau0 / period)
-    s = ss.czt(pre, m=n, w=w, a=1.0, axis=-1)
+    s = chirp_z(pre, n, -2.0 * np.pi * step / period)
     m = np.arange(n)
     s = s * np.exp(-2j * np.pi * k0 * (tau0 + m * step) / period)
-    return replace(pulse, values=np.ascontiguousarray(s.real), rate=float(rate), t0=t_start)
+    return replace(pulse, values=np.ascontiguousarray(s.real), rate=float(rate),
+                   t0=float(t_start[0]) if many else t_start)
 
 
 def _lowpass(values, rate, cutoff):
@@ -88,17 +164,18 @@ def _lowpass(values, rate, cutoff):
     return sfft.irfft(X, n=n, axis=-1)
 
 
-def fourier_at(pulse, f_start: float, df: float, m: int) -> np.ndarray:
+def fourier_at(pulse, f_start: float, df, m: int) -> np.ndarray:
     """Continuous Fourier transform X(f) = ∫x(t)e^{−j2πft}dt of a band-limited sampled pulse at
     ``f = f_start + k·df``, k < m (chirp-z transform), in units·s.
 
     Valid for |f| below the pulse's Nyquist frequency; the phase is referred to t = 0 (not t0).
+    `df` may be an array of shape (K,) (one spacing per output record, Hz; the pulse's records
+    broadcast against it); the result then has shape (K, m).
     """
     dt = pulse.dt
-    w = np.exp(-2j * np.pi * df * dt)
-    a = np.exp(2j * np.pi * f_start * dt)
-    X = ss.czt(pulse.values, m=m, w=w, a=a, axis=-1) * dt
-    f = f_start + df * np.arange(m)
+    df = np.asarray(df, dtype=float) if np.ndim(df) else float(df)
+    X = chirp_z(pulse.values, m, 2.0 * np.pi * df * dt, 2.0 * np.pi * f_start * dt) * dt
+    f = f_start + np.multiply.outer(df, np.arange(m))
     return X * np.exp(-2j * np.pi * f * pulse.t0)
 
 
@@ -122,6 +199,8 @@ def analytic(values) -> np.ndarray:
     record is treated as periodic only beyond that padding; when the length is already a
     fast length nothing is added. |analytic(x)| is the ideal envelope of a band-pass x.
     """
+    from scipy import signal as ss  # imported here: scipy.signal is slow to import
+
     v = np.asarray(values, dtype=float)
     n = v.shape[-1]
     return ss.hilbert(v, N=sfft.next_fast_len(n), axis=-1)[..., :n]

@@ -206,6 +206,9 @@ def _cmd_plot(args) -> int:
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser (exposed for documentation and tests)."""
     p = argparse.ArgumentParser(prog="timescale", description="Compare analog pulse time-scaling methods.")
+    p.add_argument("--threads", type=int, default=1, metavar="N",
+                   help="BLAS/OpenMP threads for this process and each worker (default 1: workers side "
+                        "by side would otherwise oversubscribe the cores; 0 leaves the libraries' own setting)")
     sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
     s = sub.add_parser("methods", help="list available methods and their parameters")
     s.set_defaults(func=_cmd_methods)
@@ -267,11 +270,18 @@ def build_parser() -> argparse.ArgumentParser:
 def main(argv=None) -> int:
     """Run the command line; returns the exit status."""
     args = build_parser().parse_args(argv)
+    from timescale.runner import threads
+
+    before = threads.worker_threads()
     try:
-        return int(args.func(args) or 0)
+        threads.set_worker_threads(args.threads)  # local workers and Dask tasks inherit it
+        with threads.limited(args.threads):
+            return int(args.func(args) or 0)
     except (ValueError, TypeError, FileExistsError, ImportError) as exc:
         print(f"timescale: error: {exc}", file=sys.stderr)
         return 2
+    finally:
+        threads.set_worker_threads(before)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -1,6 +1,10 @@
 """Executors: map the pure :func:`~timescale.runner.cells.run_cell` over chunks of cell indices
 in-process, on local worker processes, or on a Dask cluster, with the per-cell time limit.
 Each executor yields lists of rows as they complete.
+
+Every worker process and every Dask task limits BLAS/OpenMP to
+:func:`~timescale.runner.threads.worker_threads` threads (default 1), so that workers side by
+side do not oversubscribe the cores (see :mod:`timescale.runner.threads`).
 """
 
 from __future__ import annotations
@@ -12,6 +16,7 @@ import time
 
 from timescale.runner.cells import Row, run_cell
 from timescale.runner.suite import Plan
+from timescale.runner.threads import limit_threads, limited, worker_threads
 
 __all__ = ["iter_serial", "iter_processes", "iter_dask", "import_dask", "CellTimeout", "DASK_HINT"]
 
@@ -60,11 +65,13 @@ def _run_indices(plan: Plan, entropy: int, indices) -> list:
 
 
 _WORKER: tuple | None = None  # (plan, entropy), set once per worker process
+_LIMITER = None  # keeps the worker's thread limit alive
 
 
-def _init_worker(plan, entropy):
-    global _WORKER
+def _init_worker(plan, entropy, threads=1):
+    global _WORKER, _LIMITER
     _WORKER = (plan, entropy)
+    _LIMITER = limit_threads(threads)  # one BLAS thread per worker unless told otherwise
     # the parent coordinates a stop: workers ignore Ctrl-C (sent to the whole process group)
     # and die on SIGTERM, whatever handler the parent had installed before forking them
     signal.signal(signal.SIGINT, signal.SIG_IGN)
@@ -85,7 +92,8 @@ def _process_chunk(indices):
 
 
 def _dask_chunk(payload, indices):
-    return _run_indices(payload[0], payload[1], indices)
+    with limited(payload[2], environ=False):  # the worker's libraries are loaded: limit them
+        return _run_indices(payload[0], payload[1], indices)
 
 
 # ---- executors (the driver side): each yields lists of rows as they complete -------------------
@@ -105,7 +113,7 @@ def iter_processes(plan, entropy, pending, workers, chunk):
     from concurrent.futures.process import BrokenProcessPool
 
     chunk = chunk or _chunk_size(len(pending), workers, 64)
-    ex = ProcessPoolExecutor(workers, initializer=_init_worker, initargs=(plan, entropy))
+    ex = ProcessPoolExecutor(workers, initializer=_init_worker, initargs=(plan, entropy, worker_threads()))
     try:
         todo = {ex.submit(_process_chunk, pending[k:k + chunk]) for k in range(0, len(pending), chunk)}
         while todo:
@@ -133,7 +141,7 @@ def iter_dask(plan, entropy, pending, client, chunk):
     dd = import_dask()
     nworkers = max(1, len(client.scheduler_info().get("workers", {})))
     chunk = chunk or _chunk_size(len(pending), nworkers, 128)
-    [payload] = client.scatter([(plan, entropy)], broadcast=True)  # once per worker
+    [payload] = client.scatter([(plan, entropy, worker_threads())], broadcast=True)  # once per worker
     futs = [client.submit(_dask_chunk, payload, pending[k:k + chunk], pure=False)
             for k in range(0, len(pending), chunk)]
     try:

@@ -7,7 +7,6 @@ import math
 
 import numpy as np
 import scipy.fft as sfft
-from scipy import signal as ss
 
 from timescale.data import checks as _checks
 from timescale.data.signal import analytic
@@ -48,6 +47,8 @@ def lowpass(values, rate: float, cutoff: float, order: int = 4) -> np.ndarray:
     """
     v = np.asarray(values, dtype=float)
     fc = _checks.positive("cutoff", cutoff)
+    from scipy import signal as ss  # imported here: scipy.signal is slow to import
+
     b, a = ss.bessel(int(order), 2 * math.pi * fc, analog=True, norm="mag")
     n = v.shape[-1]
     w = 2 * math.pi * sfft.rfftfreq(n, 1.0 / _checks.positive("rate", rate))

@@ -8,7 +8,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import optimize
 
 from timescale.data import checks as _checks
 from timescale.numerics.dispersion.measured import fit_gdd
@@ -437,6 +436,8 @@ def design_allpass(gdd: float, f_lo: float, f_hi: float, *, sections: int | None
     x = np.concatenate([np.log(w0 / ref), np.log(q0)])
     spread = abs(phi) * dw + 1e-300
     if np.sqrt(np.mean(resid(x) ** 2)) / ref > ripple_target * spread:
+        from scipy import optimize  # imported here: slow to import, needed by fits only
+
         x = optimize.least_squares(resid, x, jac=jac, method="trf", max_nfev=int(max_iterations)).x
     a, b = np.exp(x[:n]) * ref, np.exp(x[n:])
     line = AllpassLine(second=tuple(zip(a, b)), q_unloaded=q_unloaded, center=wc / (2 * math.pi),

@@ -31,19 +31,26 @@ Lifting
     the few sample intervals that hold a boundary (vectorized over trials).
 
 Repeating schedules
-    Equal systems (same A, B, C, D, Q, even as distinct objects) share one discretization.
-    The stretches of one system are grouped: the input-driven products of all of them are
-    done at once, and for a system shared by all trials the whole stretch is one affine map
-    of the state. When all trials also share the boundaries, every piece of the record (a
-    stretch, or a sample interval that holds boundaries, integrated by exact sub-steps) is
-    an affine map ``x_end = M x_start + W u[start:end+1]`` that depends only on its kind
-    (system, length, sub-sample offsets, edges taken to 1e-9 of the sample interval): a
-    periodic schedule has a few kinds, each kind's M and W are computed once, the offsets
-    W u of all pieces of a kind are one matrix product over their stacked inputs, and the
-    maps are then chained with one small product per piece; the outputs inside the
-    stretches follow per system in lifted form. A pulse train switched in every period thus
-    costs a few microseconds per switch. Blocks of input below 2⁻⁶⁴ of the record's peak are
-    skipped in the lifted products (their share is below rounding).
+    Equal systems (same A, B, C, D, even as distinct objects: found by an exact hash of their
+    stacked matrices) share one discretization. The stretches of one system are grouped: the
+    input-driven products of all of them are done at once, and for a system shared by all
+    trials the whole stretch is one affine map of the state. When all trials also share the
+    boundaries, every piece of the record (a stretch, or a sample interval that holds
+    boundaries, integrated by exact sub-steps) is an affine map ``x_end = M x_start + c`` that
+    depends only on its kind (system, length, sub-sample offsets, edges taken to 1e-9 of the
+    sample interval): a periodic schedule has a few kinds, M is computed once per kind, the
+    offsets c of all stretches of a kind come from one block recursion vectorized over them,
+    and the chain of maps is merged pairwise while the pieces repeat (one product per distinct
+    pair), so its sequential part stays short; the outputs inside the stretches follow per
+    system in lifted form. A pulse train switched in every period thus costs a few
+    microseconds per switch.
+
+Many trials
+    When anything differs per trial (systems, boundaries or input), the trials are simulated
+    in chunks whose work arrays stay near 8 MB, so the memory peak stays close to the output
+    itself and a chunk's arrays are reused from the allocator's cache. Blocks of input below
+    2⁻⁶⁴ of the record's peak are skipped in the per-trial lifted products (their share is
+    below rounding).
 
 Noise
     The state covariance before the first boundary is the stationary solution of the

@@ -8,9 +8,9 @@ import math
 
 import numpy as np
 
-from timescale.numerics.lti.discretize import foh_step
+from timescale.numerics.lti.discretize import FohFamily, foh_step
 from timescale.numerics.lti.planning import _Plan, _prepare, _stack_systems, _unique
-from timescale.numerics.lti.systems import StateSpace
+from timescale.numerics.lti.systems import Schedule, StateSpace
 
 
 # ------------------------------------------------------------------------------------------
@@ -24,9 +24,9 @@ class _Lifted:
     block-start state is ``Φ^L z_b + R U_b``.
     """
 
-    def __init__(self, system: StateSpace, dt: float, L: int):
+    def __init__(self, system: StateSpace, dt: float, L: int, steps=None):
         A, B, C, D, _ = system.batched(1)
-        Phi, G0, G1 = foh_step(A, B, dt)
+        Phi, G0, G1 = foh_step(A, B, dt) if steps is None else steps
         Bd = np.einsum("kij,kj->ki", Phi, G1) + G0
         Dd = np.einsum("ki,ki->k", *np.broadcast_arrays(C, G1)) + D  # C may be per trial
         self.Phi, self.G0, self.G1, self.C, self.Dd, self.Bd = Phi, G0, G1, C, Dd, Bd
@@ -71,16 +71,6 @@ class _Lifted:
         if P is None:
             P = self._pow[r] = np.linalg.matrix_power(self.Phi_b(self.Ks), r)
         return P
-
-    def krylov(self, P):
-        """(Φ^p G0, Φ^p G1) for p < P as two (P, n) arrays, shared system only (by doubling:
-        log2 P products)."""
-        V = np.stack([self.G0[0], self.G1[0]], axis=1)  # (n, 2p): columns Φ^p G0, Φ^p G1
-        Pw = self.Phi[0]
-        while V.shape[1] < 2 * P:
-            V = np.concatenate([V, Pw @ V], axis=1)
-            Pw = Pw @ Pw
-        return V[:, 0:2 * P:2].T, V[:, 1:2 * P:2].T
 
     @staticmethod
     def apply(M, z):
@@ -156,6 +146,52 @@ def simulate(schedule, u, dt: float, *, x0=None, block: int | None = None,
     schedule, u2, x, K = _prepare(schedule, u, x0)
     N = u2.shape[1]
     n = x.shape[1]
+    per_trial = K > 1 and (schedule.boundaries.shape[0] > 1 or u2.shape[0] > 1
+                           or any(s.trials > 1 for s in {id(s): s for s in schedule.systems}.values()))
+    kc = _chunk(N, n, block) if per_trial else K
+    thr = _ZERO_INPUT * float(np.max(np.abs(u2)))
+    if kc < K:
+        # trials in chunks: the work arrays of a chunk stay a fraction of the output, and the
+        # per-trial discretizations and lifted blocks are built chunk by chunk
+        y = np.empty((K, N))
+        x_end = np.empty((K, n))
+        for k0 in range(0, K, kc):
+            sl = slice(k0, min(K, k0 + kc))
+            y[sl], x_end[sl] = _simulate(_take(schedule, sl), u2 if u2.shape[0] == 1 else u2[sl],
+                                         x[sl], dt, block, thr)
+        return (y, x_end) if return_state else y
+    y, x = _simulate(schedule, u2, x, dt, block, thr)
+    return (y, x.copy()) if return_state else y
+
+
+#: trials per chunk are chosen so that one chunk's work arrays (about 4 records of N samples per
+#: trial, with n/L states per sample) stay near this size, bytes: below the output of any large
+#: batch, and within the last-level cache's reach for a fast first call
+_CHUNK_BYTES = 8 * 2 ** 20
+
+
+def _chunk(N: int, n: int, block) -> int:
+    L = block or (16 if n <= 24 else 32)
+    per_trial = 8 * N * (4 + 3 * n / L) + 8 * 4 * (n + 2) ** 2 * 2 + 8 * 3 * L * max(n, L)
+    return max(16, int(_CHUNK_BYTES // per_trial))
+
+
+def _take(schedule: Schedule, sl: slice) -> Schedule:
+    """The trials `sl` of a schedule (batched systems and per-trial boundaries sliced)."""
+    def cut(a, nd):
+        return a if a is None or a.ndim < nd else a[sl]
+    systems = tuple(s if s.trials == 1 else
+                    StateSpace(cut(s.A, 3), cut(s.B, 2), cut(s.C, 2), cut(s.D, 1), cut(s.Q, 3))
+                    for s in schedule.systems)
+    b = schedule.boundaries
+    return Schedule(systems, b if b.shape[0] == 1 else b[sl])
+
+
+def _simulate(schedule, u2, x, dt, block, thr):
+    """:func:`simulate` on prepared arrays: u2 (1 or K, N), x (K, n), `thr` the input level
+    treated as zero; returns (y, x_end)."""
+    K, n = x.shape
+    N = u2.shape[1]
     plan = _Plan(schedule, N, dt, K)
     uniq, umap = _unique(schedule)
     As, Bs, Cs, Ds, _, rows = _stack_systems(uniq, K)
@@ -166,13 +202,12 @@ def simulate(schedule, u, dt: float, *, x0=None, block: int | None = None,
     Ku = u2.shape[0]
     uK = np.broadcast_to(u2, (K, N))
     y = np.empty((K, N))
-    thr = _ZERO_INPUT * float(np.max(np.abs(u2)))
     if plan.shared and As.shape[1] == 1:
-        y, x = _simulate_shared(plan, uniq, umap, As, Bs, Cs, Ds, u2, x, L, thr)
-        return (y, x) if return_state else y
+        return _simulate_shared(plan, uniq, umap, As, Bs, Cs, Ds, u2, x, L, thr)
 
     # 1. group the stretches by system; everything the input drives is computed per group
     #    in a few large products (the schedule repeats, so the groups are few)
+    fams = _Families(As, Bs, dt)
     lifted, groups, recs = {}, {}, []
     for piece in plan.pieces:
         if piece[0] != "stretch":
@@ -181,7 +216,7 @@ def simulate(schedule, u, dt: float, *, x0=None, block: int | None = None,
         _, a, b, m = piece
         um = int(umap[m])
         if um not in lifted:
-            lifted[um] = _Lifted(uniq[um], dt, L)
+            lifted[um] = _Lifted(uniq[um], dt, L, steps=fams.step(um, dt))
         g = groups.setdefault(um, {"nb": 0, "recs": []})
         Ns = b - a
         nb = -(-Ns // L)
@@ -273,7 +308,7 @@ def simulate(schedule, u, dt: float, *, x0=None, block: int | None = None,
         else:
             _, a, b = piece
             for j in range(a, b):  # the few intervals that hold a boundary
-                m_lo, P, q0, q1 = _window_step(plan, j, As, Bs, umap, rows, dt)
+                m_lo, P, q0, q1 = _window_step(plan, j, As, Bs, umap, rows, dt, fams)
                 Ms.append(P)
                 cs.append(q0 * uK[:, j:j + 1] + q1 * uK[:, j + 1:j + 2])
                 after.append(("sample", m_lo, j))
@@ -318,7 +353,7 @@ def simulate(schedule, u, dt: float, *, x0=None, block: int | None = None,
         for rec in g["recs"]:
             o = rec["off"] * L
             y[:, rec["a"]:rec["b"]] = Y[:, o:o + rec["b"] - rec["a"]]
-    return (y, x.copy()) if return_state else y
+    return y, x
 
 
 def _ranges(starts, lengths):
@@ -348,11 +383,12 @@ def _simulate_shared(plan, uniq, umap, As, Bs, Cs, Ds, u2, x, L, thr):
     """:func:`simulate` when every trial shares the systems and the boundaries.
 
     Each piece of the record (a stretch of one system, or a sample interval that holds
-    boundaries) is an affine map ``x_end = M x_start + W u[start:end + 1]``. Pieces of one
-    kind (same system, length, sub-sample offsets) share M and W, so a periodic schedule
-    needs a few kinds: the offsets of all pieces of a kind are one product over their stacked
-    inputs, and the sequential part is one small product per piece. The outputs inside the
-    stretches then come per system in lifted form, vectorized over the stretches.
+    boundaries) is an affine map ``x_end = M x_start + c``. Pieces of one kind (same system,
+    length, sub-sample offsets) share M, so a periodic schedule needs a few kinds: the offsets
+    of all stretches of a kind come from one block recursion vectorized over them
+    (:func:`_stretch_offsets`), those of the boundary intervals from one product per kind, and
+    the chain of maps is stepped by :func:`_chain`. The outputs inside the stretches then come
+    per system in lifted form, vectorized over the stretches.
 
     The sub-step edges of a boundary interval are taken to 1e-9 of dt, which absorbs the
     rounding of instants computed as k·dt (relative 1e-16 of t, i.e. up to ~1e-11 of dt at
@@ -423,38 +459,20 @@ def _simulate_shared(plan, uniq, umap, As, Bs, Cs, Ds, u2, x, L, thr):
     for key in kdef:
         if key[0] == "s" and key[1] not in lifted:
             lifted[key[1]] = _Lifted(uniq[key[1]], dt, L)
-    longest = {}
-    for key in kdef:
+    MT = []
+    c = np.empty((pk.size, Ku, n))
+    for k, key in enumerate(kdef):
+        sel = np.flatnonzero(pk == k)
         if key[0] == "s":
-            longest[key[1]] = max(longest.get(key[1], 0), key[2])
-    kry = {um: lifted[um].krylov(max(P, 1)) for um, P in longest.items()}
-    MT, W = [], []
-    for key in kdef:
-        if key[0] == "s":
-            _, um, ln = key
-            V0, V1 = kry[um]
-            w = np.zeros((n, ln + 1))
-            if ln:  # x_e = Φ^ln x_a + Σ_k Φ^(e−1−k) (G0 u_k + G1 u_(k+1))
-                w[:, :ln] += V0[ln - 1::-1].T
-                w[:, 1:] += V1[ln - 1::-1].T
-            MT.append(np.ascontiguousarray(lifted[um].power(ln)[0].T))
-            W.append(w)
-        else:
+            lf = lifted[key[1]]
+            MT.append(np.ascontiguousarray(lf.power(key[2])[0].T))
+            c[sel] = _stretch_offsets(lf, u2, pa[sel], key[2])
+        else:  # the input-driven offsets of all pieces of a kind in one product
             P, q0, q1 = _composite_step(As, Bs, key[2], dt)
             MT.append(np.ascontiguousarray(P.T))
-            W.append(np.stack([q0, q1], axis=1))
-    # the input-driven offsets of all pieces of a kind in one product
-    c = np.empty((pk.size, Ku, n))
-    for k, w in enumerate(W):
-        sel = np.flatnonzero(pk == k)
-        idx = pa[sel][:, None] + np.arange(w.shape[1])
-        c[sel] = np.swapaxes(u2[:, idx] @ w.T, 0, 1)
-    # the sequential part: one small product per piece
-    X = np.empty((pk.size, K, n))
-    maps = [MT[k] for k in pk.tolist()]
-    for i, M in enumerate(maps):
-        X[i] = x
-        x = x @ M + c[i]
+            c[sel] = np.swapaxes(u2[:, pa[sel][:, None] + np.arange(2)] @ np.stack([q0, q1]), 0, 1)
+    # the sequential part: the chain of affine maps, states before each
+    X, x = _chain(MT, pk, c, x)
     y = np.empty((K, N))
     if wj:  # outputs at the boundary intervals' first samples
         wp, Jw = np.array(wpos), np.array(wj)
@@ -472,14 +490,13 @@ def _simulate_shared(plan, uniq, umap, As, Bs, Cs, Ds, u2, x, L, thr):
         offs = np.cumsum(nbs) - nbs
         NB = int(nbs.sum())
         samp = _ranges(a, ns)
-        flat = _ranges(offs * L, ns)
+        flat = samp + np.repeat(offs * L - a, ns)
         U = np.zeros((Ku, NB * L))
         U[:, flat] = u2[:, samp]
         U = U.reshape(Ku, NB, L)
-        act = np.flatnonzero(np.any(np.abs(U) > thr, axis=(0, 2)))  # blocks with input
-        RU = np.zeros((Ku, NB, n))
-        if act.size:
-            RU[:, act] = _times_transpose(U[:, act], lf.R)
+        # one product for every block: with the system shared, skipping quiet blocks would cost
+        # more (gathers and scatters) than the products it saves
+        RU = _times_transpose(U, lf.R)
         # block-start states z = x − G1 u, from each stretch's start state
         cur = np.swapaxes(X[pos], 0, 1) - lf.G1[0] * u2[:, a][..., None]
         Z = np.empty((K, NB, n))
@@ -490,13 +507,134 @@ def _simulate_shared(plan, uniq, umap, As, Bs, Cs, Ds, u2, x, L, thr):
             if bi + 1 < nbs.max():
                 cur = cur @ ALT + RU[:, offs + np.minimum(bi, nbs - 1)]
         Y = Z @ lf.O[0].T
-        if act.size:
-            Y[:, act] += _times_transpose(U[:, act], lf.T)
+        Y += _times_transpose(U, lf.T)
         y[:, samp] = Y.reshape(K, NB * L)[:, flat]
     return y, x
 
 
-def _window_step(plan, j, As, Bs, umap, rows, dt):
+#: a chain longer than this is first merged pairwise (pieces of a repeating schedule repeat too)
+_CHAIN_DIRECT = 32
+
+
+def _chain(mats, kinds, c, x):
+    """States of the chain x ← x·Mᵀ_k + c_i over its pieces i (kind k = kinds[i]; `mats` holds
+    Mᵀ per kind, c has shape (P, Ku, n), x (K, n)): returns (X, x_end) with X[i] the state
+    before piece i, shape (P, K, n).
+
+    One small product per piece would make the sequential loop the cost of a long periodic
+    schedule. So neighbouring pieces are merged pairwise, level by level, while the pairs
+    repeat (few distinct pairs: one product of matrices per distinct pair, and the offsets of
+    all pairs of a kind in one product); the short chain left is stepped one piece at a time,
+    and the states inside every merged pair follow level by level on the way down, again one
+    product per kind."""
+    mats = list(mats)
+    kinds = np.asarray(kinds, dtype=int)
+    levels = []
+    while kinds.size > _CHAIN_DIRECT:
+        half = kinds.size // 2
+        left, right = kinds[0:2 * half:2], kinds[1:2 * half:2]
+        pairs, inv = np.unique(left * len(mats) + right, return_inverse=True)
+        if pairs.size > max(8, half // 8):  # the pieces do not repeat: merging would not pay
+            break
+        inv = np.reshape(inv, -1)
+        base = len(mats)
+        for code in pairs.tolist():
+            mats.append(mats[code // base] @ mats[code % base])
+        cl, cr = c[0:2 * half:2], c[1:2 * half:2]
+        merged = np.empty((half,) + c.shape[1:])
+        for r in np.unique(right).tolist():
+            sel = np.flatnonzero(right == r)
+            merged[sel] = cl[sel] @ mats[r] + cr[sel]
+        levels.append((left, cl, kinds.size))
+        kinds = np.concatenate([base + inv, kinds[2 * half:]])
+        c = np.concatenate([merged, c[2 * half:]])
+    X = np.empty((kinds.size,) + np.broadcast_shapes(x.shape, c.shape[1:]))
+    if x.shape[0] == 1 and c.shape[1] == 1:  # one record: vector products, less overhead each
+        x1, X1, c1, dot = x[0], X[:, 0], c[:, 0], np.dot
+        for i, k in enumerate(kinds.tolist()):
+            X1[i] = x1
+            x1 = dot(x1, mats[k]) + c1[i]
+        x = x1[None]
+    else:
+        for i, k in enumerate(kinds.tolist()):
+            X[i] = x
+            x = x @ mats[k] + c[i]
+    for left, cl, size in reversed(levels):  # the states inside the merged pairs
+        half = left.size
+        Y = np.empty((size,) + X.shape[1:])
+        Y[0:2 * half:2] = X[:half]
+        for k in np.unique(left).tolist():
+            sel = np.flatnonzero(left == k)
+            Y[2 * sel + 1] = X[sel] @ mats[k] + cl[sel]
+        Y[2 * half:] = X[half:]
+        X = Y
+    return X, x
+
+
+def _stretch_offsets(lf, u2, starts, ln):
+    """``x_e − Φ^ln x_a`` of the stretches of ln samples that start at `starts` (shared system),
+    for every input record: shape (stretches, Ku, n).
+
+    In the lifted variable z = x − G1 u the stretch adds Σ_k Φ^(ln−1−k) B_d u_(a+k); with the
+    input padded with zeros at the front to whole blocks this is the block recursion
+    s ← Φ^L s + R U_b from zero, vectorized over the stretches (no full-length Krylov basis)."""
+    Ku, n, L = u2.shape[0], lf.n, lf.L
+    if ln == 0:
+        return np.zeros((starts.size, Ku, n))
+    nb = -(-ln // L)
+    U = np.zeros((Ku, starts.size, nb * L))
+    U[:, :, nb * L - ln:] = u2[:, starts[:, None] + np.arange(ln)]
+    RU = U.reshape(-1, L) @ lf.R[0].T
+    RU = RU.reshape(Ku, starts.size, nb, n)
+    acc = RU[:, :, 0]
+    ALT = lf.AL[0].T
+    for b in range(1, nb):
+        acc = acc @ ALT + RU[:, :, b]
+    G1 = lf.G1[0]
+    off = acc - (lf.power(ln)[0] @ G1) * u2[:, starts][..., None] + G1 * u2[:, starts + ln][..., None]
+    return np.swapaxes(off, 0, 1)
+
+
+class _Families:
+    """Which distinct systems are scalings (s·A, s·B) of one another (a switched or ramped
+    schedule: every segment scales the first), so that their exact steps share one
+    :class:`FohFamily`; `step` returns None where the systems asked for are of different
+    families."""
+
+    def __init__(self, As, Bs, dt):
+        U = As.shape[0]
+        self.base = np.arange(U)
+        self.scale = np.ones(U)
+        self.As, self.Bs, self.dt, self._fam = As, Bs, dt, {}
+        for j in range(1, U):
+            for i in range(j):
+                if self.base[i] != i:
+                    continue
+                Ai = As[i]
+                k = np.unravel_index(np.argmax(np.abs(Ai)), Ai.shape)
+                if Ai[k] == 0:
+                    continue
+                s = As[j][k] / Ai[k]
+                # equal to rounding: A_j = A_i·(1/α) as StateSpace.scaled computes it
+                if s > 0 and np.allclose(As[j], s * Ai, rtol=1e-14, atol=0) and \
+                        np.allclose(Bs[j], s * Bs[i], rtol=1e-14, atol=0):
+                    self.base[j], self.scale[j] = i, s
+                    break
+
+    def step(self, um, h):
+        """(Phi, G0, G1) of systems `um` (an index, or one per trial) over steps `h`, or None."""
+        um = np.asarray(um)
+        b = self.base[um]
+        if b.ndim and np.any(b != b.flat[0]):
+            return None
+        b0 = int(b.flat[0]) if b.ndim else int(b)
+        fam = self._fam.get(b0)
+        if fam is None:
+            fam = self._fam[b0] = FohFamily(self.As[b0], self.Bs[b0], self.dt)
+        return fam.step(np.asarray(h, dtype=float) * self.scale[um])
+
+
+def _window_step(plan, j, As, Bs, umap, rows, dt, fams=None):
     """Composite exact step over sample interval j, which holds one or more boundaries:
     returns (m_lo, P, q0, q1) with x[j+1] = P x[j] + q0 u[j] + q1 u[j+1] and m_lo the segment
     (per trial) at the interval's start."""
@@ -508,7 +646,8 @@ def _window_step(plan, j, As, Bs, umap, rows, dt):
     q1 = np.zeros((K, n))
     for m, sa, sb in subs:
         um = umap[m]
-        Phi, G0, G1 = foh_step(As[um, rows], Bs[um, rows], sb - sa)
+        steps = None if fams is None else fams.step(um, sb - sa)
+        Phi, G0, G1 = foh_step(As[um, rows], Bs[um, rows], sb - sa) if steps is None else steps
         wa, wb = (sa / dt)[:, None], (sb / dt)[:, None]
         P = Phi @ P
         q0 = np.einsum("kij,kj->ki", Phi, q0) + G0 * (1 - wa) + G1 * (1 - wb)

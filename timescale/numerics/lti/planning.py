@@ -103,21 +103,60 @@ class _Plan:
 def _unique(schedule: Schedule):
     """Distinct systems of a schedule and, per segment, the index of its system.
 
-    Equal systems (same A, B, C, D, Q) share one discretization: a periodic schedule then
-    needs only as many matrix exponentials as it has distinct systems and sub-step lengths.
+    Equal systems (same A, B, C, D, even as distinct objects) share one discretization: a
+    periodic schedule then needs only as many matrix exponentials as it has distinct systems
+    and sub-step lengths. Objects are told apart by identity first; the distinct objects are
+    then compared in one pass over their stacked matrices (no per-system hashing); the answer is
+    kept on the (immutable) schedule for its next run.
     """
-    by_id, by_key, uniq, umap = {}, {}, [], []
+    cached = schedule.__dict__.get("_distinct")
+    if cached is not None:
+        return cached
+    uniq, umap = _distinct(schedule)
+    uniq = tuple(uniq)
+    umap.setflags(write=False)
+    object.__setattr__(schedule, "_distinct", (uniq, umap))
+    return uniq, umap
+
+
+def _distinct(schedule: Schedule):
+    by_id, objs, obj_of = {}, [], []
     for s in schedule.systems:
-        i = by_id.get(id(s))
-        if i is None:
-            k = _key(s)
-            i = by_key.get(k)
-            if i is None:
-                i = by_key[k] = len(uniq)
-                uniq.append(s)
-            by_id[id(s)] = i
-        umap.append(i)
-    return uniq, np.array(umap, dtype=int)
+        i = by_id.setdefault(id(s), len(objs))
+        if i == len(objs):
+            objs.append(s)
+        obj_of.append(i)
+    obj_of = np.array(obj_of, dtype=int)
+    if len(objs) == 1:
+        return objs, obj_of
+    try:  # every system with the same shapes: compare the rows of one stacked array
+        S = len(objs)
+        rows = np.concatenate([np.array([o.A for o in objs]).reshape(S, -1), np.array([o.B for o in objs]),
+                               np.array([o.C for o in objs]), np.array([o.D for o in objs]).reshape(S, -1)],
+                              axis=1)
+        if rows.ndim != 2 or rows.shape[1] != objs[0].order * (objs[0].order + 2) + 1:
+            raise ValueError("batched systems")
+    except ValueError:  # shapes differ (some systems batched over trials): compare as bytes
+        keys, first = {}, []
+        for i, o in enumerate(objs):
+            first.append(keys.setdefault(_key(o), i))
+        _, idx, inv = np.unique(np.array(first), return_index=True, return_inverse=True)
+    else:
+        # a hash of each row's bits (integer arithmetic modulo 2⁶⁴: exact, so equal rows hash
+        # equal whatever the order of summation); rows with equal hashes are then compared in
+        # full, so a coincidence of hashes cannot merge two different systems
+        rows = np.ascontiguousarray(rows)
+        mult = np.random.default_rng(0).integers(1, 2 ** 63, rows.shape[1], dtype=np.uint64) | np.uint64(1)
+        h = (rows.view(np.uint64) * mult).sum(axis=1, dtype=np.uint64)
+        _, idx, inv = np.unique(h, return_index=True, return_inverse=True)
+        inv = np.reshape(inv, -1)
+        if not np.array_equal(rows, rows[idx[inv]]):
+            _, idx, inv = np.unique(rows.view(np.dtype((np.void, rows.dtype.itemsize * rows.shape[1]))).ravel(),
+                                    return_index=True, return_inverse=True)
+    order = np.argsort(idx)  # keep the distinct systems in order of first use
+    rank = np.empty_like(order)
+    rank[order] = np.arange(order.size)
+    return [objs[i] for i in idx[order]], rank[np.reshape(inv, -1)][obj_of]
 
 
 def _stack_systems(systems, K: int):

@@ -4,7 +4,6 @@
 from __future__ import annotations
 
 import numpy as np
-import scipy.linalg as sla
 
 from timescale.numerics.lti.systems import StateSpace
 
@@ -36,6 +35,8 @@ def frequency_response(system: StateSpace, f) -> np.ndarray:
         raise ValueError("frequency_response needs an unbatched system")
     A = system.A.reshape(system.order, system.order)
     # Hessenberg form keeps the per-frequency solve well conditioned and cheap
+    import scipy.linalg as sla  # imported here: slow to import, needed by this helper only
+
     H, Z = sla.hessenberg(A, calc_q=True)
     b = Z.T @ system.B.reshape(-1)
     c = system.C.reshape(-1) @ Z

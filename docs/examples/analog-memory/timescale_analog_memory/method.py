@@ -48,7 +48,6 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.fft as sfft
-from scipy import signal as ss
 
 from timescale.numerics import costs
 from timescale.plugin import (
@@ -256,7 +255,7 @@ class AnalogMemory(Method):
         def finish(values):
             values = values * droop
             if filt is not None:
-                values = ss.lfilter(filt[0], filt[1], values, axis=-1)
+                values = _signal().lfilter(filt[0], filt[1], values, axis=-1)
             return values
 
         if p.noise:
@@ -339,6 +338,13 @@ class AnalogMemory(Method):
 
 # ---- helpers (pure functions, tested on their own) ----------------------------------------------
 
+def _signal():
+    """scipy.signal, imported on first use (it is slow to import; listing methods needs none)."""
+    from scipy import signal
+
+    return signal
+
+
 def _output_noise(cell_noise: float, droop: np.ndarray, filt, k: int) -> float:
     """RMS output noise at read sample `k`: independent kT/C samples of rms `cell_noise`, each
     drooped with its cell and summed through the readout filter's response, V."""
@@ -346,7 +352,7 @@ def _output_noise(cell_noise: float, droop: np.ndarray, filt, k: int) -> float:
         return float(cell_noise * droop[k])
     impulse = np.zeros(k + 1)
     impulse[0] = 1.0
-    h = ss.lfilter(filt[0], filt[1], impulse)
+    h = _signal().lfilter(filt[0], filt[1], impulse)
     return float(cell_noise * math.sqrt(np.sum(h[::-1] ** 2 * droop[: k + 1] ** 2)))
 
 
@@ -417,8 +423,8 @@ def sample_band_limited(pulse: Pulse, times, *, aperture: float = 0.0) -> np.nda
 
 def _readout_system(kind: str, cutoff: float, order: int):
     if kind == "first-order":
-        return ss.butter(1, 2 * math.pi * cutoff, analog=True)
-    return ss.butter(order, 2 * math.pi * cutoff, analog=True)
+        return _signal().butter(1, 2 * math.pi * cutoff, analog=True)
+    return _signal().butter(order, 2 * math.pi * cutoff, analog=True)
 
 
 def readout_filter(kind: str, cutoff: float, read_rate: float, order: int = 3):
@@ -447,9 +453,9 @@ def readout_filter(kind: str, cutoff: float, read_rate: float, order: int = 3):
     if kind == "ideal":
         return None
     b, a = _readout_system(kind, cutoff, order)
-    A, B, C, D = ss.tf2ss(b, a)
-    Ad, Bd, Cd, Dd, _ = ss.cont2discrete((A, B, C, D), 1.0 / read_rate, method="zoh")
-    num, den = ss.ss2tf(Ad, Bd, Cd, Dd)
+    A, B, C, D = _signal().tf2ss(b, a)
+    Ad, Bd, Cd, Dd, _ = _signal().cont2discrete((A, B, C, D), 1.0 / read_rate, method="zoh")
+    num, den = _signal().ss2tf(Ad, Bd, Cd, Dd)
     # y[k+1] (end of slot k) = Σ num[1:]·u[k…]: dropping the leading (zero, D = 0) term of the
     # numerator advances the output by one slot, so index k is the end of slot k
     return np.asarray(num[0][1:], dtype=float), np.asarray(den, dtype=float)
@@ -461,5 +467,5 @@ def readout_settling_error(kind: str, cutoff: float, read_rate: float, order: in
         return 0.0
     b, a = _readout_system(kind, cutoff, order)
     T = 1.0 / read_rate
-    _, s = ss.step((b, a), T=np.array([0.0, T]))
+    _, s = _signal().step((b, a), T=np.array([0.0, T]))
     return float(abs(1.0 - s[-1]))
